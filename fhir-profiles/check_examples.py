@@ -1,0 +1,288 @@
+#!/usr/bin/env python3
+"""Validate the example requests against the official FHIR R4 JSON Schema and
+against the calcium-cds input profiles.
+
+    pip install jsonschema          # the only dependency besides the stdlib
+    python3 fhir-profiles/check_examples.py [FILE ...]
+
+With no FILE, every examples/*.json and the two conformance resources
+(CapabilityStatement, OperationDefinition) are checked, then a built-in set of
+edge cases confirms that the profiles accept valid-but-unusual FHIR and reject
+what FHIR forbids. Prints one line per file (and per edge case) and exits
+non-zero on any error.
+
+Checks per file:
+  1. official: the whole document against r4/fhir.schema.json (draft-06), via
+     the definition for its resourceType (the branch of the top-level oneOf
+     that applies, used directly so that error messages are readable).
+  2. profile: the document against schemas/<type>.schema.json (draft 2020-12);
+     then, recursively, every Bundle.entry.resource, Parameters.parameter.resource
+     (and part[].resource) and contained resource against the profile for its
+     own resourceType. Resource types we have no profile for are counted as
+     "unprofiled" (not an error).
+"""
+
+import json
+import sys
+from pathlib import Path
+
+try:
+    from jsonschema import Draft6Validator, Draft202012Validator
+except ImportError:  # pragma: no cover
+    sys.exit("check_examples.py needs the jsonschema package: pip install jsonschema")
+
+HERE = Path(__file__).resolve().parent
+OFFICIAL = HERE / "r4" / "fhir.schema.json"
+CONFORMANCE = [HERE / "CapabilityStatement-calcium-cds.json", HERE / "OperationDefinition-assess.json"]
+PROFILES = {
+    "Bundle": "bundle",
+    "Parameters": "parameters",
+    "Patient": "patient",
+    "Observation": "observation",
+    "Condition": "condition",
+}
+
+
+def short_path(err):
+    return "/".join(str(p) for p in err.absolute_path) or "(root)"
+
+
+def is_known_gap(rtype, err):
+    """The vendored schema's FHIRVersion enum stops at "4.0.0", so the true
+    value "4.0.1" (CapabilityStatement.fhirVersion, StructureDefinition.fhirVersion,
+    ImplementationGuide.fhirVersion) is rejected. This one error is waived and
+    reported; see r4/ORIGIN.md."""
+    return (err.validator == "enum" and err.instance == "4.0.1"
+            and "fhirVersion" in [str(p) for p in err.absolute_path])
+
+
+class Checker:
+    def __init__(self):
+        official = json.loads(OFFICIAL.read_text(encoding="utf-8"))
+        Draft6Validator.check_schema(official)
+        self.official = official
+        self._official_by_type = {}
+        self.last_waived = []
+        self.profiles = {}
+        for rtype, stem in PROFILES.items():
+            schema = json.loads((HERE / "schemas" / (stem + ".schema.json")).read_text(encoding="utf-8"))
+            Draft202012Validator.check_schema(schema)
+            self.profiles[rtype] = Draft202012Validator(schema)
+
+    def official_validator(self, rtype):
+        if rtype not in self._official_by_type:
+            if rtype not in self.official["discriminator"]["mapping"]:
+                return None
+            # Same document, root narrowed to one resource type so that errors
+            # are specific rather than 150 failed oneOf branches.
+            schema = {k: v for k, v in self.official.items() if k not in ("oneOf", "discriminator")}
+            schema["allOf"] = [{"$ref": "#/definitions/" + rtype}]
+            self._official_by_type[rtype] = Draft6Validator(schema)
+        return self._official_by_type[rtype]
+
+    def check_official(self, doc):
+        rtype = doc.get("resourceType") if isinstance(doc, dict) else None
+        v = self.official_validator(rtype)
+        if v is None:
+            return ["official: unknown resourceType %r" % (rtype,)]
+        errors, self.last_waived = [], []
+        for e in sorted(v.iter_errors(doc), key=lambda e: list(map(str, e.absolute_path))):
+            msg = "official: %s: %s" % (short_path(e), e.message)
+            if is_known_gap(rtype, e):
+                self.last_waived.append(msg)
+            else:
+                errors.append(msg)
+        return errors
+
+    def check_profiles(self, resource, where, stats):
+        errors = []
+        if not isinstance(resource, dict):
+            return ["profile: %s: not a JSON object" % where]
+        rtype = resource.get("resourceType")
+        v = self.profiles.get(rtype)
+        if v is None:
+            stats["unprofiled"] += 1
+        else:
+            stats["profiled"] += 1
+            for e in v.iter_errors(resource):
+                errors.append("profile %s: %s/%s: %s" % (PROFILES[rtype], where, short_path(e), e.message))
+        for i, c in enumerate(resource.get("contained") or []):
+            errors += self.check_profiles(c, "%s/contained/%d" % (where, i), stats)
+        if rtype == "Bundle":
+            for i, entry in enumerate(resource.get("entry") or []):
+                if isinstance(entry, dict):
+                    if "resource" in entry:
+                        errors += self.check_profiles(entry["resource"], "%s/entry/%d/resource" % (where, i), stats)
+                    outcome = (entry.get("response") or {}).get("outcome")
+                    if outcome is not None:
+                        errors += self.check_profiles(outcome, "%s/entry/%d/response/outcome" % (where, i), stats)
+        if rtype == "Parameters":
+            errors += self._parameters(resource.get("parameter") or [], where + "/parameter", stats)
+        return errors
+
+    def _parameters(self, params, where, stats):
+        errors = []
+        for i, p in enumerate(params):
+            if not isinstance(p, dict):
+                continue
+            if "resource" in p:
+                errors += self.check_profiles(p["resource"], "%s/%d/resource" % (where, i), stats)
+            errors += self._parameters(p.get("part") or [], "%s/%d/part" % (where, i), stats)
+        return errors
+
+    def check(self, doc):
+        stats = {"profiled": 0, "unprofiled": 0}
+        errors = self.check_official(doc) + self.check_profiles(doc, "", stats)
+        return errors, stats
+
+
+# ---------------------------------------------------------------------------
+# Edge cases: (label, resource, expected_valid_in_profile). Valid ones are also
+# run through the official schema, which must accept them too, unless marked
+# with official=False (a known limitation of the official schema).
+# ---------------------------------------------------------------------------
+
+def _obs(**kw):
+    o = {"resourceType": "Observation", "status": "final",
+         "code": {"coding": [{"system": "http://loinc.org", "code": "1994-3"}]}}
+    o.update(kw)
+    return o
+
+
+def _pat(**kw):
+    p = {"resourceType": "Patient"}
+    p.update(kw)
+    return p
+
+
+def _cond(**kw):
+    c = {"resourceType": "Condition", "subject": {"reference": "Patient/p1"}}
+    c.update(kw)
+    return c
+
+
+def _bundle(btype, entry, **kw):
+    b = {"resourceType": "Bundle", "type": btype, "entry": entry}
+    b.update(kw)
+    return b
+
+
+UCUM = "http://unitsofmeasure.org"
+CLIN = "http://terminology.hl7.org/CodeSystem/condition-clinical"
+VER = "http://terminology.hl7.org/CodeSystem/condition-ver-status"
+PAT_ENTRY = {"fullUrl": "urn:uuid:2b7c8a7e-4a0e-4f4e-9a51-0c1d1d5b7a10", "resource": {"resourceType": "Patient"}}
+EDGE_CASES = [
+    # must pass
+    ("year-only birthDate", _pat(birthDate="2019"), True, True),
+    ("year-month birthDate", _pat(birthDate="2019-03"), True, True),
+    ("year-only effectiveDateTime", _obs(effectiveDateTime="2026"), True, True),
+    ("dateTime with fractional seconds and Z", _obs(effectiveDateTime="2026-11-30T08:15:00.125Z"), True, True),
+    ("dateTime at +14:00", _obs(effectiveDateTime="2026-11-30T08:15:00+14:00"), True, True),
+    ("leap second", _obs(issued="2016-12-31T23:59:60Z"), True, True),
+    ("comparator <", _obs(valueQuantity={"value": 0.5, "comparator": "<", "unit": "mmol/L", "system": UCUM, "code": "mmol/L"}), True, True),
+    ("unit text only (no code)", _obs(valueQuantity={"value": 8.4, "unit": "mg/dl"}), True, True),
+    ("integer value", _obs(valueQuantity={"value": 9, "system": UCUM, "code": "mg/dL"}), True, True),
+    ("status only as _status", {"resourceType": "Observation", "_status": {"extension": [{"url": "http://example.org/x", "valueString": "?"}]},
+                                "code": {"text": "calcium"}}, True, True),
+    ("dataAbsentReason without value", _obs(dataAbsentReason={"text": "not done"}), True, True),
+    ("component with own value", _obs(component=[{"code": {"text": "a"}, "valueQuantity": {"value": 1}}]), True, True),
+    ("modifierExtension with url", _obs(modifierExtension=[{"url": "http://example.org/m", "valueBoolean": True}]), True, True),
+    ("unread elements pass through", _obs(note=[{"text": "x"}], referenceRange=[{"text": "1.15-1.35"}]), True, True),
+    ("given with null + _given", _pat(name=[{"given": ["Ada", None], "_given": [None, {"extension": [{"url": "http://example.org/g", "valueString": "x"}]}]}]), True, False),
+    ("contained-style reference", _obs(subject={"reference": "#p1"}), True, True),
+    ("Condition onsetString, no clinicalStatus", _cond(onsetString="this morning"), True, True),
+    ("Condition abated and resolved (con-4)", _cond(abatementDateTime="2026-11-29",
+        clinicalStatus={"coding": [{"system": CLIN, "code": "resolved"}]}), True, True),
+    ("collection Bundle", _bundle("collection", [PAT_ENTRY]), True, True),
+    ("transaction entry with request", _bundle("transaction", [dict(PAT_ENTRY, request={"method": "POST", "url": "Patient"})]), True, True),
+    ("searchset with total and search.mode", _bundle("searchset", [dict(PAT_ENTRY, search={"mode": "match"})], total=1), True, True),
+    ("Parameters with value and with part", {"resourceType": "Parameters", "parameter": [
+        {"name": "now", "valueDateTime": "2026-11-30T08:15:00-05:00"},
+        {"name": "grp", "part": [{"name": "bundle", "resource": _bundle("collection", [PAT_ENTRY])}]}]}, True, True),
+    # must fail
+    ("status not an R4 code", _obs(status="done"), False, False),
+    ("no status at all", {"resourceType": "Observation", "code": {"text": "x"}}, False, True),
+    ("birthDate with time", _pat(birthDate="2019-03-04T10:00:00Z"), False, False),
+    ("dateTime without time zone", _obs(effectiveDateTime="2026-11-30T08:15:00"), False, False),
+    ("dateTime without seconds", _obs(effectiveDateTime="2026-11-30T08:15-05:00"), False, False),
+    ("instant without time", _obs(issued="2026-11-30"), False, False),
+    ("value as string number", _obs(valueQuantity={"value": "1.05"}), False, False),
+    ("bad comparator", _obs(valueQuantity={"value": 1, "comparator": "=="}), False, False),
+    ("Quantity code without system (qty-3)", _obs(valueQuantity={"value": 1, "code": "mmol/L"}), False, True),
+    ("value and dataAbsentReason (obs-6)", _obs(valueString="x", dataAbsentReason={"text": "y"}), False, True),
+    ("two value[x]", _obs(valueString="x", valueQuantity={"value": 1}), False, True),
+    ("modifierExtension without url", _obs(modifierExtension=[{"valueBoolean": True}]), False, True),
+    ("bad id", _obs(id="has space"), False, False),
+    ("gender not an R4 code", _pat(gender="F"), False, False),
+    ("empty coding array", _obs(code={"coding": []}), False, True),
+    ("Condition without subject", {"resourceType": "Condition"}, False, False),
+    ("Condition abated but active (con-4)", _cond(abatementDateTime="2026-11-29",
+        clinicalStatus={"coding": [{"system": CLIN, "code": "active"}]}), False, True),
+    ("Condition entered-in-error with clinicalStatus (con-5)", _cond(
+        verificationStatus={"coding": [{"system": VER, "code": "entered-in-error"}]},
+        clinicalStatus={"coding": [{"system": CLIN, "code": "active"}]}), False, True),
+    ("Bundle type not an R4 code", _bundle("bag", [PAT_ENTRY]), False, False),
+    ("transaction entry without request (bdl-3)", _bundle("transaction", [PAT_ENTRY]), False, True),
+    ("collection entry with request (bdl-3)", _bundle("collection", [dict(PAT_ENTRY, request={"method": "POST", "url": "Patient"})]), False, True),
+    ("search.mode outside a searchset (bdl-2)", _bundle("collection", [dict(PAT_ENTRY, search={"mode": "match"})]), False, True),
+    ("total outside searchset/history (bdl-1)", _bundle("collection", [PAT_ENTRY], total=1), False, True),
+    ("entry resource without resourceType", _bundle("collection", [{"resource": {"id": "x"}}]), False, False),
+    ("parameter with value and resource (inv-1)", {"resourceType": "Parameters", "parameter": [
+        {"name": "bundle", "valueString": "x", "resource": _bundle("collection", [PAT_ENTRY])}]}, False, True),
+    ("parameter without name", {"resourceType": "Parameters", "parameter": [{"valueString": "x"}]}, False, True),
+]
+
+
+def run_edge_cases(checker):
+    failures = 0
+    for label, res, profile_ok, official_ok in EDGE_CASES:
+        stats = {"profiled": 0, "unprofiled": 0}
+        prof_errs = checker.check_profiles(res, "", stats)
+        off_errs = checker.check_official(res)
+        ok = (not prof_errs) == profile_ok and (not off_errs) == official_ok
+        if not ok:
+            failures += 1
+        print("%s edge case: %-40s profile %s (expected %s), official %s (expected %s)" % (
+            "ok  " if ok else "FAIL", label,
+            "accepts" if not prof_errs else "rejects", "accept" if profile_ok else "reject",
+            "accepts" if not off_errs else "rejects", "accept" if official_ok else "reject"))
+        if not ok:
+            for e in prof_errs + off_errs:
+                print("       " + e)
+    return failures
+
+
+def main(argv):
+    checker = Checker()
+    files = [Path(a) for a in argv] or (sorted((HERE / "examples").glob("*.json")) + CONFORMANCE)
+    failures = 0
+    for f in files:
+        try:
+            doc = json.loads(f.read_text(encoding="utf-8"))
+        except (OSError, ValueError) as exc:
+            print("FAIL %s: cannot read JSON: %s" % (f.name, exc))
+            failures += 1
+            continue
+        errors, stats = checker.check(doc)
+        waived = list(checker.last_waived)
+        if isinstance(doc, dict) and not doc.get("id"):
+            errors.append("example has no top-level id")
+        if errors:
+            failures += 1
+            print("FAIL %s (%d errors)" % (f.name, len(errors)))
+            for e in errors:
+                print("       " + e)
+        else:
+            print("ok   %s: %s valid (official R4 schema + profiles; %d resources profiled, %d unprofiled)%s" % (
+                f.name, doc.get("resourceType"), stats["profiled"], stats["unprofiled"],
+                "; waived known schema gap: " + "; ".join(waived) if waived else ""))
+    if not argv:
+        failures += run_edge_cases(checker)
+    if failures:
+        print("%d failure(s)" % failures)
+        return 1
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))

@@ -1,0 +1,95 @@
+//! The command line: `assess FILE|-` and `serve`.
+
+use std::io::Read;
+use std::process::ExitCode;
+
+use crate::config::{AssessArgs, Cli, Command, ServeArgs, load_rules};
+use crate::engine::Engine;
+use crate::fhir::datetime;
+
+/// Exit code for a request the service refuses (its OperationOutcome is printed).
+pub const EXIT_REQUEST_ERROR: u8 = 2;
+/// Exit code for a configuration or start-up problem.
+pub const EXIT_CONFIG_ERROR: u8 = 1;
+
+/// Run the parsed command line.
+pub fn run(cli: Cli) -> ExitCode {
+    match cli.command {
+        Command::Assess(args) => assess(&args),
+        Command::Serve(args) => serve(&args),
+    }
+}
+
+fn engine(site: Option<&std::path::PathBuf>) -> Result<Engine, String> {
+    Engine::new(load_rules(site)?)
+}
+
+fn assess(args: &AssessArgs) -> ExitCode {
+    let (now, fixed) = match &args.now {
+        Some(text) => match datetime::parse_date_time(text) {
+            Ok(t) if t.date_only.is_none() => (t.when.latest, true),
+            _ => {
+                eprintln!("calcium-cds: --now must be an RFC 3339 date-time with seconds and an offset, e.g. 2026-11-30T15:00:00Z");
+                return ExitCode::from(EXIT_CONFIG_ERROR);
+            }
+        },
+        None => (
+            std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs() as i64).unwrap_or(0),
+            false,
+        ),
+    };
+    let engine = match engine(args.rules.rules.as_ref()) {
+        Ok(e) => e,
+        Err(e) => {
+            eprintln!("calcium-cds: {e}");
+            return ExitCode::from(EXIT_CONFIG_ERROR);
+        }
+    };
+    let mut body = Vec::new();
+    let read = if args.file == "-" {
+        std::io::stdin().read_to_end(&mut body).map(|_| ())
+    } else {
+        std::fs::read(&args.file).map(|b| body = b)
+    };
+    if let Err(e) = read {
+        eprintln!("calcium-cds: cannot read {}: {e}", args.file);
+        return ExitCode::from(EXIT_REQUEST_ERROR);
+    }
+    match engine.assess(&body, now, fixed) {
+        Ok(outcome) => {
+            println!("{}", serde_json::to_string_pretty(&outcome.bundle).unwrap_or_default());
+            ExitCode::SUCCESS
+        }
+        Err(err) => {
+            println!("{}", serde_json::to_string_pretty(&err.to_operation_outcome()).unwrap_or_default());
+            eprintln!("calcium-cds: request refused ({err})");
+            ExitCode::from(EXIT_REQUEST_ERROR)
+        }
+    }
+}
+
+fn serve(args: &ServeArgs) -> ExitCode {
+    crate::telemetry::init(true);
+    let engine = match engine(args.rules.rules.as_ref()) {
+        Ok(e) => e,
+        Err(e) => {
+            tracing::error!(error = %e, "rules could not be loaded");
+            eprintln!("calcium-cds: {e}");
+            return ExitCode::from(EXIT_CONFIG_ERROR);
+        }
+    };
+    let rules_label = engine.rules.label();
+    let system = actix_web::rt::System::new();
+    let result = system.block_on(async {
+        let app = crate::http::Application::build(args, engine)?;
+        tracing::info!(port = app.port(), rules = %rules_label, version = crate::engine::VERSION, "listening");
+        app.run_until_stopped().await.map_err(|e| e.to_string())
+    });
+    match result {
+        Ok(()) => ExitCode::SUCCESS,
+        Err(e) => {
+            eprintln!("calcium-cds: {e}");
+            ExitCode::from(EXIT_CONFIG_ERROR)
+        }
+    }
+}

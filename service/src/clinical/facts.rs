@@ -1,0 +1,234 @@
+//! Typed, validated facts: what the FHIR reader hands to the clinical core.
+//!
+//! Values are already in the analyte's canonical unit; each fact keeps where it
+//! came from (`Source`) so the output can point back at it.
+
+use serde::Deserialize;
+
+use super::time::{PartialDate, When};
+
+/// What an observation measures.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Deserialize)]
+#[serde(rename_all = "snake_case")]
+#[allow(missing_docs, reason = "variant names are the analyte names")]
+pub enum Analyte {
+    CalciumTotal,
+    CalciumIonized,
+    CalciumAlbuminAdjusted,
+    Albumin,
+    Phosphate,
+    Magnesium,
+    PthIntact,
+    AlkalinePhosphatase,
+    #[serde(rename = "vitamin_d_25oh")]
+    VitaminD25Oh,
+    #[serde(rename = "vitamin_d3_25oh")]
+    VitaminD3_25Oh,
+    #[serde(rename = "vitamin_d_1_25")]
+    VitaminD1_25,
+    Creatinine,
+    UrineCalcium,
+    UrineCreatinine,
+    UrineCalciumCreatinineRatio,
+    BloodPh,
+    BodyWeight,
+    BodyHeight,
+    Qtc,
+    Lipase,
+    CreatineKinase,
+    GestationalAgeAtBirth,
+}
+
+impl Analyte {
+    /// The key used in rule files.
+    pub fn key(self) -> &'static str {
+        match self {
+            Self::CalciumTotal => "calcium_total",
+            Self::CalciumIonized => "calcium_ionized",
+            Self::CalciumAlbuminAdjusted => "calcium_albumin_adjusted",
+            Self::Albumin => "albumin",
+            Self::Phosphate => "phosphate",
+            Self::Magnesium => "magnesium",
+            Self::PthIntact => "pth_intact",
+            Self::AlkalinePhosphatase => "alkaline_phosphatase",
+            Self::VitaminD25Oh => "vitamin_d_25oh",
+            Self::VitaminD3_25Oh => "vitamin_d3_25oh",
+            Self::VitaminD1_25 => "vitamin_d_1_25",
+            Self::Creatinine => "creatinine",
+            Self::UrineCalcium => "urine_calcium",
+            Self::UrineCreatinine => "urine_creatinine",
+            Self::UrineCalciumCreatinineRatio => "urine_calcium_creatinine_ratio",
+            Self::BloodPh => "blood_ph",
+            Self::BodyWeight => "body_weight",
+            Self::BodyHeight => "body_height",
+            Self::Qtc => "qtc",
+            Self::Lipase => "lipase",
+            Self::CreatineKinase => "creatine_kinase",
+            Self::GestationalAgeAtBirth => "gestational_age_at_birth",
+        }
+    }
+}
+
+/// A symptom or sign of hypocalcemia.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Deserialize)]
+#[serde(rename_all = "snake_case")]
+#[allow(missing_docs, reason = "variant names are the symptom names")]
+pub enum Symptom {
+    Seizure,
+    Tetany,
+    CarpopedalSpasm,
+    Laryngospasm,
+    Paresthesia,
+    Arrhythmia,
+    Stridor,
+    Bradycardia,
+    ChvostekSign,
+    TrousseauSign,
+    MuscleCramp,
+}
+
+impl Symptom {
+    /// Plain label.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Seizure => "seizure",
+            Self::Tetany => "tetany",
+            Self::CarpopedalSpasm => "carpopedal spasm",
+            Self::Laryngospasm => "laryngospasm",
+            Self::Paresthesia => "paresthesia",
+            Self::Arrhythmia => "cardiac arrhythmia",
+            Self::Stridor => "stridor",
+            Self::Bradycardia => "bradycardia",
+            Self::ChvostekSign => "Chvostek sign",
+            Self::TrousseauSign => "Trousseau sign",
+            Self::MuscleCramp => "muscle cramp",
+        }
+    }
+}
+
+/// Where a fact came from in the request.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Source {
+    /// Resource type, e.g. "Observation".
+    pub resource_type: String,
+    /// The reference an output resource uses to point at it (fullUrl or
+    /// `Type/id`), when the input gave it an identity.
+    pub reference: Option<String>,
+    /// FHIRPath-style location in the request, e.g. `Bundle.entry[3].resource`.
+    pub expression: String,
+}
+
+impl Source {
+    /// A short label for text: the reference, else the location.
+    pub fn label(&self) -> &str {
+        self.reference.as_deref().unwrap_or(&self.expression)
+    }
+}
+
+/// Result status that survived ingestion.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum ResultStatus {
+    /// final, amended or corrected.
+    Final,
+    /// preliminary: used, with a warning.
+    Preliminary,
+}
+
+/// A coded concept as it arrived.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Code {
+    /// System URI.
+    pub system: String,
+    /// Code.
+    pub code: String,
+    /// Display from the rule set.
+    pub display: String,
+}
+
+/// A measured value in its canonical unit.
+#[derive(Debug, Clone)]
+pub struct Measurement {
+    /// What was measured.
+    pub analyte: Analyte,
+    /// Value in the canonical unit.
+    pub value: f64,
+    /// Canonical unit (UCUM).
+    pub unit: String,
+    /// Value as reported.
+    pub reported_value: f64,
+    /// UCUM code as reported.
+    pub reported_unit: String,
+    /// When the specimen was taken (or the measurement made).
+    pub when: When,
+    /// That time as the input wrote it.
+    pub when_text: String,
+    /// Status.
+    pub status: ResultStatus,
+    /// The recognised code.
+    pub code: Code,
+    /// Ionized calcium adjusted to pH 7.4.
+    pub ph_adjusted: bool,
+    /// Where it came from.
+    pub source: Source,
+}
+
+/// A symptom finding.
+#[derive(Debug, Clone)]
+pub struct SymptomFinding {
+    /// Which symptom.
+    pub symptom: Symptom,
+    /// When it was present, if known.
+    pub when: Option<When>,
+    /// That time as the input wrote it.
+    pub when_text: Option<String>,
+    /// The recognised code.
+    pub code: Code,
+    /// Where it came from.
+    pub source: Source,
+}
+
+/// Administrative gender, as far as the rules care.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+#[allow(missing_docs, reason = "FHIR administrative-gender codes")]
+pub enum Gender {
+    Male,
+    Female,
+    Other,
+    Unknown,
+}
+
+/// The patient, reduced to what the rules read. No names or identifiers.
+#[derive(Debug, Clone)]
+pub struct PatientFacts {
+    /// Birth date with its precision, if given.
+    pub birth_date: Option<PartialDate>,
+    /// Gender.
+    pub gender: Gender,
+    /// Where it came from.
+    pub source: Source,
+}
+
+/// Everything the core reads.
+#[derive(Debug, Clone)]
+pub struct Facts {
+    /// The patient.
+    pub patient: PatientFacts,
+    /// Usable measurements (any order).
+    pub measurements: Vec<Measurement>,
+    /// Symptom findings.
+    pub symptoms: Vec<SymptomFinding>,
+    /// Gestational age at birth in weeks, if recorded.
+    pub gestational_age_weeks: Option<f64>,
+    /// Evaluation time, unix seconds.
+    pub now: i64,
+}
+
+impl Facts {
+    /// Measurements of one analyte, most recent first (ties keep input order).
+    pub fn of(&self, analyte: Analyte) -> Vec<&Measurement> {
+        let mut found: Vec<&Measurement> =
+            self.measurements.iter().filter(|m| m.analyte == analyte).collect();
+        found.sort_by(|a, b| b.when.latest.cmp(&a.when.latest));
+        found
+    }
+}

@@ -1,0 +1,11 @@
+//! The pure clinical core: typed facts in, an assessment out.
+//!
+//! No I/O and no JSON here. The FHIR reader builds `facts::Facts`; the FHIR
+//! writer turns `status::Assessment` into resources.
+
+pub mod bands;
+pub mod facts;
+pub mod format;
+pub mod status;
+pub mod time;
+pub mod units;

@@ -1,0 +1,805 @@
+//! Calcium status: is this child hypocalcemic, how badly, and on what basis.
+//!
+//! Order of preference (issue 2): a usable ionized calcium; otherwise a total
+//! calcium adjusted for an albumin from the same draw; otherwise a
+//! laboratory-reported adjusted calcium; otherwise the unadjusted total, which
+//! needs an albumin before it can be trusted. Each value is judged against the
+//! age band's interval and grades from the rule data.
+
+use super::bands::{self, BandChoice, NoBand};
+use super::facts::{Analyte, Facts, Measurement, ResultStatus, Source, SymptomFinding};
+use super::format::{num, value_with_mg_dl};
+use crate::rules::model::{AgeBand, Interval, IssueSeverity, RuleSet};
+
+/// GuidanceResponse.status the assessment supports.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum GuidanceStatus {
+    /// Assessed from an ionized calcium.
+    Success,
+    /// Assessed, but more data would make it firmer (an ionized calcium).
+    DataRequested,
+    /// Not assessable, or not trustworthy, without more data.
+    DataRequired,
+    /// The rules do not cover this patient.
+    Failure,
+}
+
+impl GuidanceStatus {
+    /// The FHIR code.
+    pub fn code(self) -> &'static str {
+        match self {
+            Self::Success => "success",
+            Self::DataRequested => "data-requested",
+            Self::DataRequired => "data-required",
+            Self::Failure => "failure",
+        }
+    }
+}
+
+/// Which value the status rests on.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Measure {
+    /// Measured ionized calcium.
+    Ionized,
+    /// Total calcium adjusted here for albumin.
+    AlbuminAdjusted,
+    /// Adjusted calcium as reported by the laboratory.
+    LabAdjusted,
+    /// Total calcium with no albumin to adjust it.
+    TotalUnadjusted,
+}
+
+impl Measure {
+    /// Plain label.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Ionized => "ionized calcium",
+            Self::AlbuminAdjusted => "albumin-adjusted total calcium (calculated)",
+            Self::LabAdjusted => "albumin-adjusted calcium (reported by the laboratory)",
+            Self::TotalUnadjusted => "total calcium, not adjusted for albumin",
+        }
+    }
+}
+
+/// Where the value sits against the interval.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
+pub enum Classification {
+    /// Within the interval.
+    Normal,
+    /// Above the upper limit.
+    High,
+    /// Below the lower limit: hypocalcemia.
+    Low,
+}
+
+impl Classification {
+    /// v3 ObservationInterpretation code (LL is used for a severe grade).
+    pub fn interpretation(self, severe: bool) -> (&'static str, &'static str) {
+        match (self, severe) {
+            (Self::Low, true) => ("LL", "Critical low"),
+            (Self::Low, false) => ("L", "Low"),
+            (Self::High, _) => ("H", "High"),
+            (Self::Normal, _) => ("N", "Normal"),
+        }
+    }
+}
+
+/// The interval a value was judged against.
+#[derive(Debug, Clone)]
+pub struct IntervalUsed {
+    /// Band id.
+    pub band_id: String,
+    /// Band label.
+    pub band_label: String,
+    /// Lower limit, mmol/L.
+    pub lower: f64,
+    /// Upper limit, mmol/L.
+    pub upper: f64,
+    /// Source.
+    pub source: String,
+}
+
+/// A grade that was reached.
+#[derive(Debug, Clone)]
+pub struct GradeHit {
+    /// Grade name.
+    pub grade: String,
+    /// Threshold, mmol/L.
+    pub at_or_below: f64,
+    /// Severity.
+    pub severity: IssueSeverity,
+    /// Source.
+    pub source: String,
+}
+
+/// A QTc that was read.
+#[derive(Debug, Clone)]
+pub struct QtcFinding {
+    /// QTc, ms.
+    pub value_ms: f64,
+    /// Above the threshold.
+    pub prolonged: bool,
+    /// Threshold, ms.
+    pub threshold_ms: f64,
+    /// Where it came from.
+    pub source: Source,
+}
+
+/// The calcium status.
+#[derive(Debug, Clone)]
+pub struct CalciumFinding {
+    /// Which value.
+    pub measure: Measure,
+    /// Value, mmol/L.
+    pub value_mmol_l: f64,
+    /// Interval used.
+    pub interval: IntervalUsed,
+    /// Classification.
+    pub classification: Classification,
+    /// Deepest grade reached (only when low).
+    pub grade: Option<GradeHit>,
+    /// Symptoms that count.
+    pub symptoms: Vec<SymptomFinding>,
+    /// QTc, when one was recorded close to the result.
+    pub qtc: Option<QtcFinding>,
+    /// DetectedIssue severity, when low.
+    pub severity: Option<IssueSeverity>,
+    /// Inputs the value rests on (calcium first).
+    pub evidence: Vec<Source>,
+    /// The calcium result's time as the input wrote it.
+    pub effective_text: String,
+    /// Some input was preliminary.
+    pub preliminary: bool,
+}
+
+impl CalciumFinding {
+    /// Hypocalcemia present.
+    pub fn is_low(&self) -> bool {
+        self.classification == Classification::Low
+    }
+    /// Symptomatic (a symptom, or a prolonged QTc).
+    pub fn is_symptomatic(&self) -> bool {
+        !self.symptoms.is_empty() || self.qtc.as_ref().is_some_and(|q| q.prolonged)
+    }
+}
+
+/// The albumin-adjusted calcium computed here.
+#[derive(Debug, Clone)]
+pub struct DerivedAdjusted {
+    /// Result, mmol/L.
+    pub value_mmol_l: f64,
+    /// Result in mg/dL.
+    pub value_mg_dl: f64,
+    /// The total calcium.
+    pub calcium: Source,
+    /// The albumin.
+    pub albumin: Source,
+    /// Formula in words and symbols.
+    pub formula: String,
+    /// The arithmetic with the numbers.
+    pub arithmetic: String,
+    /// Interpretation against the band.
+    pub classification: Classification,
+    /// Severe grade reached.
+    pub severe: bool,
+    /// Interval used.
+    pub interval: Option<IntervalUsed>,
+    /// Effective time of the total calcium, as written.
+    pub effective_text: String,
+    /// Some input was preliminary.
+    pub preliminary: bool,
+}
+
+/// A missing input and why it is wanted.
+#[derive(Debug, Clone)]
+pub struct DataNeed {
+    /// Analyte.
+    pub analyte: Analyte,
+    /// Why.
+    pub reason: String,
+}
+
+/// An input the core did not use, and why.
+#[derive(Debug, Clone)]
+pub struct Unused {
+    /// Which input.
+    pub source: Source,
+    /// Why.
+    pub reason: String,
+}
+
+/// The whole result of the calcium status rules.
+#[derive(Debug, Clone)]
+pub struct Assessment {
+    /// GuidanceResponse status.
+    pub status: GuidanceStatus,
+    /// The finding, when a value could be judged.
+    pub finding: Option<CalciumFinding>,
+    /// The adjusted calcium computed here.
+    pub derived: Option<DerivedAdjusted>,
+    /// Missing inputs.
+    pub data_needs: Vec<DataNeed>,
+    /// Basis lines: inputs, formula, thresholds, sources, in order.
+    pub basis: Vec<String>,
+    /// Cautions.
+    pub cautions: Vec<String>,
+    /// Inputs not used.
+    pub unused: Vec<Unused>,
+    /// A usable Patient.birthDate is needed.
+    pub needs_birth_date: bool,
+}
+
+struct Ctx<'a> {
+    rules: &'a RuleSet,
+    facts: &'a Facts,
+    basis: Vec<String>,
+    cautions: Vec<String>,
+    needs: Vec<DataNeed>,
+    unused: Vec<Unused>,
+    needs_birth_date: bool,
+}
+
+impl Ctx<'_> {
+    fn need(&mut self, analyte: Analyte, reason: impl Into<String>) {
+        if !self.needs.iter().any(|n| n.analyte == analyte) {
+            self.needs.push(DataNeed { analyte, reason: reason.into() });
+        }
+    }
+    fn unused(&mut self, m: &Measurement, reason: impl Into<String>) {
+        self.unused.push(Unused { source: m.source.clone(), reason: reason.into() });
+    }
+    fn hours(&self, h: f64) -> i64 {
+        // Windows are whole or fractional hours; seconds are what times compare in.
+        (h * 3600.0).round() as i64
+    }
+}
+
+/// Fresh results of one analyte, most recent first; stale ones recorded as unused.
+fn fresh<'f>(ctx: &mut Ctx<'f>, analyte: Analyte) -> Vec<&'f Measurement> {
+    let limit = ctx.facts.now - ctx.hours(ctx.rules.windows.result_max_age_hours);
+    let mut keep = Vec::new();
+    for m in ctx.facts.of(analyte) {
+        if m.when.latest < limit {
+            let reason = format!(
+                "older than {} h at evaluation time ({})",
+                num(ctx.rules.windows.result_max_age_hours, 0),
+                ctx.rules.windows.result_max_age_source
+            );
+            ctx.unused(m, reason);
+        } else {
+            keep.push(m);
+        }
+    }
+    keep
+}
+
+/// Run the calcium status rules.
+pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
+    let mut ctx =
+        Ctx { rules, facts, basis: Vec::new(), cautions: Vec::new(), needs: Vec::new(), unused: Vec::new(), needs_birth_date: false };
+    let ionized = fresh(&mut ctx, Analyte::CalciumIonized);
+    let totals = fresh(&mut ctx, Analyte::CalciumTotal);
+    let albumins = fresh(&mut ctx, Analyte::Albumin);
+    let lab_adjusted = fresh(&mut ctx, Analyte::CalciumAlbuminAdjusted);
+
+    // Pick the value the status rests on.
+    let mut derived: Option<(DerivedAdjusted, &Measurement)> = None;
+    let chosen: Option<(Measure, &Measurement, Option<&Measurement>)> = if let Some(first) = ionized.first() {
+        // Prefer a result not adjusted to pH 7.4 when two share the same time.
+        let best = ionized
+            .iter()
+            .find(|m| m.when.latest == first.when.latest && !m.ph_adjusted)
+            .copied()
+            .unwrap_or(first);
+        Some((Measure::Ionized, best, None))
+    } else if let Some(total) = totals.first().copied() {
+        let window = ctx.hours(rules.windows.albumin_pairing_hours);
+        let albumin = albumins
+            .iter()
+            .filter(|a| a.when.max_distance(&total.when) <= window)
+            .min_by_key(|a| a.when.max_distance(&total.when))
+            .copied();
+        match albumin {
+            Some(alb) => Some((Measure::AlbuminAdjusted, total, Some(alb))),
+            None if !lab_adjusted.is_empty() => Some((Measure::LabAdjusted, lab_adjusted[0], None)),
+            None => Some((Measure::TotalUnadjusted, total, None)),
+        }
+    } else if let Some(adj) = lab_adjusted.first().copied() {
+        Some((Measure::LabAdjusted, adj, None))
+    } else {
+        None
+    };
+
+    let Some((measure, calcium, albumin)) = chosen else {
+        ctx.need(
+            Analyte::CalciumIonized,
+            "No usable calcium result: an ionized calcium (preferred) or a total calcium with an albumin from the same draw is needed.",
+        );
+        ctx.need(Analyte::CalciumTotal, "Needed, with an albumin from the same draw, when no ionized calcium can be measured.");
+        ctx.need(Analyte::Albumin, "Needed to adjust a total calcium.");
+        for m in &albumins {
+            ctx.unused(m, "no calcium result to adjust");
+        }
+        return finish(ctx, GuidanceStatus::DataRequired, None, None);
+    };
+
+    // Everything else of the calcium analytes is listed as not used.
+    for m in ionized.iter().chain(&totals).chain(&lab_adjusted).chain(&albumins) {
+        if std::ptr::eq(*m, calcium) || albumin.is_some_and(|a| std::ptr::eq(*m, a)) {
+            continue;
+        }
+        let reason = if m.analyte == calcium.analyte {
+            "a more recent result of the same test was used".to_owned()
+        } else if measure == Measure::Ionized {
+            "an ionized calcium was available and is preferred".to_owned()
+        } else if m.analyte == Analyte::Albumin {
+            format!(
+                "not from the same draw as the total calcium used (within {} h)",
+                num(rules.windows.albumin_pairing_hours, 0)
+            )
+        } else {
+            "a calcium value of higher preference was used".to_owned()
+        };
+        ctx.unused(m, reason);
+    }
+
+    // Age band.
+    let Some(birth) = facts.patient.birth_date else {
+        ctx.need_birth_date();
+        ctx.basis.push(describe_input(measure, calcium));
+        return finish(ctx, GuidanceStatus::DataRequired, None, None);
+    };
+    let choice = match bands::choose(rules, birth, &calcium.when, facts.gestational_age_weeks) {
+        Ok(c) => c,
+        Err(NoBand::BornAfterResult) => {
+            ctx.cautions.push(format!(
+                "Patient.birthDate ({}) is after the calcium result; the birth date cannot be trusted and was not used.",
+                facts.patient.source.expression
+            ));
+            ctx.need_birth_date();
+            return finish(ctx, GuidanceStatus::DataRequired, None, None);
+        }
+        Err(NoBand::OutsideScope(text)) => {
+            ctx.basis.push(text);
+            return finish(ctx, GuidanceStatus::Failure, None, None);
+        }
+    };
+    ctx.basis.extend(choice.notes.iter().cloned());
+
+    // The value to judge, and the interval family it belongs to.
+    let mut preliminary = calcium.status == ResultStatus::Preliminary;
+    let (value, family): (f64, fn(&AgeBand) -> &Interval) = match (measure, albumin) {
+        (Measure::AlbuminAdjusted, Some(alb)) => {
+            preliminary |= alb.status == ResultStatus::Preliminary;
+            let d = adjust(rules, calcium, alb);
+            let v = d.value_mmol_l;
+            derived = Some((d, calcium));
+            (v, |b| &b.adjusted)
+        }
+        (Measure::Ionized, _) => (calcium.value, |b| &b.ionized),
+        (Measure::LabAdjusted, _) => (calcium.value, |b| &b.adjusted),
+        _ => (calcium.value, |b| &b.total),
+    };
+    ctx.basis.push(describe_input(measure, calcium));
+    if let (Some((d, _)), Some(alb)) = (&derived, albumin) {
+        ctx.basis.push(format!(
+            "Albumin {} g/L ({} g/dL) at {} from {}.",
+            num(alb.value, 1),
+            num(alb.value / 10.0, 2),
+            alb.when_text,
+            alb.source.label()
+        ));
+        ctx.basis.push(format!("{} {}", d.formula, d.arithmetic));
+    }
+
+    // Judge against every candidate band; keep the most severe result.
+    let judged: Vec<(Classification, Option<GradeHit>, &AgeBand)> = choice
+        .candidates
+        .iter()
+        .map(|band| {
+            let (c, g) = judge(value, family(band));
+            (c, g, *band)
+        })
+        .collect();
+    let worst = judged
+        .iter()
+        .max_by_key(|(c, g, _)| (*c, g.as_ref().map(|g| g.severity)))
+        .cloned();
+    let Some((classification, grade, band)) = worst else {
+        return finish(ctx, GuidanceStatus::Failure, None, None);
+    };
+    if judged.len() > 1 {
+        let agree = judged.iter().all(|(c, g, _)| {
+            *c == classification && g.as_ref().map(|g| &g.grade) == grade.as_ref().map(|g| &g.grade)
+        });
+        let labels: Vec<&str> = judged.iter().map(|(_, _, b)| b.label.as_str()).collect();
+        ctx.basis.push(if agree {
+            format!("The possible age bands ({}) give the same result.", labels.join("; "))
+        } else {
+            format!(
+                "The possible age bands ({}) disagree; the most severe reading ({}) is reported. Record the full birth date.",
+                labels.join("; "),
+                band.label
+            )
+        });
+    }
+    let interval = family(band);
+    let used = IntervalUsed {
+        band_id: band.id.clone(),
+        band_label: band.label.clone(),
+        lower: interval.lower,
+        upper: interval.upper,
+        source: interval.source.clone(),
+    };
+    ctx.basis.push(age_line(&choice, band));
+    ctx.basis.push(format!(
+        "Reference interval for {}: {}-{} mmol/L (source: {}).",
+        measure.label(),
+        num(used.lower, 2),
+        num(used.upper, 2),
+        used.source
+    ));
+    ctx.basis.push(match classification {
+        Classification::Low => format!(
+            "{} mmol/L is below the lower limit {} mmol/L: hypocalcemia.",
+            num(value, 2),
+            num(used.lower, 2)
+        ),
+        Classification::High => format!(
+            "{} mmol/L is above the upper limit {} mmol/L. High calcium is outside the scope of these rules.",
+            num(value, 2),
+            num(used.upper, 2)
+        ),
+        Classification::Normal => format!("{} mmol/L is within the interval.", num(value, 2)),
+    });
+    if let Some(g) = &grade {
+        ctx.basis.push(format!(
+            "Grade {}: {} <= {} mmol/L (source: {}).",
+            g.grade,
+            num(value, 2),
+            num(g.at_or_below, 2),
+            g.source
+        ));
+    }
+
+    // Symptoms and QTc near the result.
+    let symptoms = symptoms_near(&mut ctx, calcium);
+    let qtc = qtc_near(&mut ctx, calcium);
+    for s in &symptoms {
+        ctx.basis.push(format!(
+            "Symptom: {} ({}, {}).",
+            s.symptom.label(),
+            s.source.label(),
+            s.when_text.as_deref().map_or("time not recorded".to_owned(), |t| format!("at {t}"))
+        ));
+    }
+    if let Some(q) = &qtc {
+        ctx.basis.push(format!(
+            "QTc {} ms from {}: {} (threshold > {} ms; source: {}).",
+            num(q.value_ms, 0),
+            q.source.label(),
+            if q.prolonged { "prolonged" } else { "not prolonged" },
+            num(q.threshold_ms, 0),
+            rules.qtc.source
+        ));
+    }
+
+    let mut evidence = vec![calcium.source.clone()];
+    if let Some(alb) = albumin {
+        evidence.push(alb.source.clone());
+    }
+    evidence.extend(symptoms.iter().map(|s| s.source.clone()));
+    if let Some(q) = qtc.as_ref().filter(|q| q.prolonged) {
+        evidence.push(q.source.clone());
+    }
+
+    let mut finding = CalciumFinding {
+        measure,
+        value_mmol_l: value,
+        interval: used.clone(),
+        classification,
+        grade,
+        symptoms,
+        qtc,
+        severity: None,
+        evidence,
+        effective_text: calcium.when_text.clone(),
+        preliminary,
+    };
+    if finding.is_low() {
+        let base = finding.grade.as_ref().map_or(rules.severity.below_interval, |g| g.severity);
+        let severity = if finding.is_symptomatic() {
+            ctx.basis.push(format!(
+                "Symptomatic, so severity is at least {} ({}).",
+                rules.severity.symptomatic.code(),
+                rules.severity.symptomatic_source
+            ));
+            base.max(rules.severity.symptomatic)
+        } else {
+            base
+        };
+        finding.severity = Some(severity);
+    }
+    if preliminary {
+        ctx.cautions.push("A result used here is preliminary; the assessment may change when it is final.".to_owned());
+    }
+
+    // Status and what else is needed.
+    let mut status = GuidanceStatus::Success;
+    match measure {
+        Measure::Ionized => {
+            if calcium.ph_adjusted {
+                ctx.cautions.push(
+                    "The ionized calcium used is adjusted to pH 7.4; it may differ from the ionized calcium at the patient's actual pH."
+                        .to_owned(),
+                );
+            }
+        }
+        Measure::AlbuminAdjusted | Measure::LabAdjusted => {
+            ctx.cautions.push(rules.albumin_adjustment.caution.clone());
+            status = GuidanceStatus::DataRequested;
+            ctx.need(Analyte::CalciumIonized, "The albumin-adjusted calcium is an estimate; a measured ionized calcium is needed to confirm the status.");
+            if let Some(alb) = albumin {
+                if alb.value < rules.albumin_adjustment.unreliable_below_albumin_g_l {
+                    status = GuidanceStatus::DataRequired;
+                    ctx.cautions.push(format!(
+                        "Albumin {} g/L is below {} g/L, where the adjusted calcium is least reliable ({}). Measure an ionized calcium.",
+                        num(alb.value, 1),
+                        num(rules.albumin_adjustment.unreliable_below_albumin_g_l, 0),
+                        rules.albumin_adjustment.unreliable_source
+                    ));
+                }
+            }
+        }
+        Measure::TotalUnadjusted => {
+            status = GuidanceStatus::DataRequired;
+            ctx.cautions.push(
+                "Total calcium was judged without an albumin from the same draw: a low albumin lowers total calcium without lowering ionized calcium, so this result cannot tell true hypocalcemia from low protein."
+                    .to_owned(),
+            );
+            ctx.need(Analyte::Albumin, "Needed from the same draw to adjust the total calcium.");
+            ctx.need(Analyte::CalciumIonized, "A measured ionized calcium is the preferred test.");
+        }
+    }
+    let derived = derived.map(|(mut d, _)| {
+        let (c, g) = judge(d.value_mmol_l, &band.adjusted);
+        d.classification = c;
+        d.severe = g.as_ref().is_some_and(|g| g.severity == IssueSeverity::High);
+        d.interval = Some(IntervalUsed {
+            band_id: band.id.clone(),
+            band_label: band.label.clone(),
+            lower: band.adjusted.lower,
+            upper: band.adjusted.upper,
+            source: band.adjusted.source.clone(),
+        });
+        d.preliminary = preliminary;
+        d
+    });
+    finish(ctx, status, Some(finding), derived)
+}
+
+impl Ctx<'_> {
+    fn need_birth_date(&mut self) {
+        self.needs_birth_date = true;
+        self.cautions.push(
+            "Patient.birthDate is needed to choose age-specific reference intervals; no status was assigned.".to_owned(),
+        );
+    }
+}
+
+fn finish(
+    ctx: Ctx<'_>,
+    status: GuidanceStatus,
+    finding: Option<CalciumFinding>,
+    derived: Option<DerivedAdjusted>,
+) -> Assessment {
+    Assessment {
+        status,
+        finding,
+        derived,
+        data_needs: ctx.needs,
+        basis: ctx.basis,
+        cautions: ctx.cautions,
+        unused: ctx.unused,
+        needs_birth_date: ctx.needs_birth_date,
+    }
+}
+
+fn describe_input(measure: Measure, m: &Measurement) -> String {
+    format!(
+        "{} {} at {} from {}{}.",
+        capitalise(measure_input_label(measure)),
+        if m.reported_unit == m.unit {
+            format!("{} {}", num(m.reported_value, 2), m.reported_unit)
+        } else {
+            format!("{} {} (= {} {})", num(m.reported_value, 2), m.reported_unit, num(m.value, 3), m.unit)
+        },
+        m.when_text,
+        m.source.label(),
+        if m.ph_adjusted { ", adjusted to pH 7.4" } else { "" }
+    )
+}
+
+fn measure_input_label(measure: Measure) -> &'static str {
+    match measure {
+        Measure::Ionized => "ionized calcium",
+        Measure::LabAdjusted => "albumin-adjusted calcium reported by the laboratory",
+        Measure::AlbuminAdjusted | Measure::TotalUnadjusted => "total calcium",
+    }
+}
+
+fn capitalise(s: &str) -> String {
+    let mut chars = s.chars();
+    chars.next().map(|c| c.to_uppercase().collect::<String>() + chars.as_str()).unwrap_or_default()
+}
+
+fn age_line(choice: &BandChoice<'_>, band: &AgeBand) -> String {
+    if choice.age_min == choice.age_max {
+        format!("Age {} on the result date: band '{}'.", choice.age_min.describe(), band.label)
+    } else {
+        format!("Band '{}' applied.", band.label)
+    }
+}
+
+/// Compare a value with an interval; return the classification and the
+/// deepest grade reached (grades only apply below the lower limit).
+pub fn judge(value: f64, interval: &Interval) -> (Classification, Option<GradeHit>) {
+    if value < interval.lower {
+        let grade = interval
+            .grades
+            .iter()
+            .filter(|g| value <= g.at_or_below)
+            .min_by(|a, b| a.at_or_below.total_cmp(&b.at_or_below))
+            .map(|g| GradeHit {
+                grade: g.grade.clone(),
+                at_or_below: g.at_or_below,
+                severity: g.severity,
+                source: g.source.clone(),
+            });
+        (Classification::Low, grade)
+    } else if value > interval.upper {
+        (Classification::High, None)
+    } else {
+        (Classification::Normal, None)
+    }
+}
+
+/// Albumin-adjusted calcium in the unit system the calcium was reported in.
+pub fn adjust(rules: &RuleSet, calcium: &Measurement, albumin: &Measurement) -> DerivedAdjusted {
+    let a = &rules.albumin_adjustment;
+    let ca_mass = rules.analyte(Analyte::CalciumTotal).and_then(|r| r.molar_mass_g_per_mol);
+    // mmol/L x (g/mol) / 10 = mg/dL.
+    let to_mg_dl = |mmol: f64| ca_mass.map_or(f64::NAN, |m| mmol * m / 10.0);
+    let albumin_g_l = albumin.value;
+    if calcium.reported_unit == "mg/dL" {
+        let ca = calcium.reported_value;
+        let alb = albumin_g_l / 10.0;
+        let adjusted = ca + a.conventional_slope_mg_dl_per_g_dl * (a.conventional_reference_albumin_g_dl - alb);
+        let mmol = ca_mass.map_or(f64::NAN, |m| adjusted * 10.0 / m);
+        DerivedAdjusted {
+            value_mmol_l: mmol,
+            value_mg_dl: adjusted,
+            calcium: calcium.source.clone(),
+            albumin: albumin.source.clone(),
+            formula: format!(
+                "Adjusted Ca (mg/dL) = Ca + {} x ({} - albumin g/dL) ({}).",
+                num(a.conventional_slope_mg_dl_per_g_dl, 2),
+                num(a.conventional_reference_albumin_g_dl, 1),
+                a.source
+            ),
+            arithmetic: format!(
+                "{} + {} x ({} - {}) = {} mg/dL = {} mmol/L.",
+                num(ca, 2),
+                num(a.conventional_slope_mg_dl_per_g_dl, 2),
+                num(a.conventional_reference_albumin_g_dl, 1),
+                num(alb, 2),
+                num(adjusted, 2),
+                num(mmol, 2)
+            ),
+            classification: Classification::Normal,
+            severe: false,
+            interval: None,
+            effective_text: calcium.when_text.clone(),
+            preliminary: false,
+        }
+    } else {
+        let ca = calcium.value;
+        let adjusted = ca + a.si_slope_mmol_l_per_g_l * (a.si_reference_albumin_g_l - albumin_g_l);
+        DerivedAdjusted {
+            value_mmol_l: adjusted,
+            value_mg_dl: to_mg_dl(adjusted),
+            calcium: calcium.source.clone(),
+            albumin: albumin.source.clone(),
+            formula: format!(
+                "Adjusted Ca (mmol/L) = Ca + {} x ({} - albumin g/L) ({}).",
+                num(a.si_slope_mmol_l_per_g_l, 3),
+                num(a.si_reference_albumin_g_l, 0),
+                a.source
+            ),
+            arithmetic: format!(
+                "{} + {} x ({} - {}) = {} mmol/L.",
+                num(ca, 2),
+                num(a.si_slope_mmol_l_per_g_l, 3),
+                num(a.si_reference_albumin_g_l, 0),
+                num(albumin_g_l, 1),
+                num(adjusted, 2)
+            ),
+            classification: Classification::Normal,
+            severe: false,
+            interval: None,
+            effective_text: calcium.when_text.clone(),
+            preliminary: false,
+        }
+    }
+}
+
+fn symptoms_near(ctx: &mut Ctx<'_>, calcium: &Measurement) -> Vec<SymptomFinding> {
+    let window = ctx.hours(ctx.rules.windows.symptom_window_hours);
+    let mut near = Vec::new();
+    for s in &ctx.facts.symptoms {
+        match &s.when {
+            Some(w) if w.min_distance(&calcium.when) > window => ctx.unused.push(Unused {
+                source: s.source.clone(),
+                reason: format!(
+                    "{} recorded more than {} h from the calcium result ({})",
+                    s.symptom.label(),
+                    num(ctx.rules.windows.symptom_window_hours, 0),
+                    ctx.rules.windows.symptom_window_source
+                ),
+            }),
+            _ => near.push(s.clone()),
+        }
+    }
+    near
+}
+
+fn qtc_near(ctx: &mut Ctx<'_>, calcium: &Measurement) -> Option<QtcFinding> {
+    let window = ctx.hours(ctx.rules.windows.qtc_pairing_hours);
+    let mut chosen = None;
+    for q in ctx.facts.of(Analyte::Qtc) {
+        if chosen.is_none() && q.when.min_distance(&calcium.when) <= window {
+            chosen = Some(QtcFinding {
+                value_ms: q.value,
+                prolonged: q.value > ctx.rules.qtc.prolonged_above_ms,
+                threshold_ms: ctx.rules.qtc.prolonged_above_ms,
+                source: q.source.clone(),
+            });
+        } else {
+            let reason = if chosen.is_some() {
+                "a QTc closer in time was used".to_owned()
+            } else {
+                format!(
+                    "more than {} h from the calcium result ({})",
+                    num(ctx.rules.windows.qtc_pairing_hours, 0),
+                    ctx.rules.windows.qtc_pairing_source
+                )
+            };
+            ctx.unused(q, reason);
+        }
+    }
+    chosen
+}
+
+/// Analytes read by other rules; recorded as unused by this module for now.
+pub fn unused_by_status(facts: &Facts) -> Vec<Unused> {
+    use Analyte as A;
+    facts
+        .measurements
+        .iter()
+        .filter(|m| {
+            !matches!(
+                m.analyte,
+                A::CalciumIonized | A::CalciumTotal | A::Albumin | A::CalciumAlbuminAdjusted | A::Qtc
+            )
+        })
+        .map(|m| Unused {
+            source: m.source.clone(),
+            reason: format!("recognised ({}) but not read by the calcium status rules", m.analyte.key()),
+        })
+        .collect()
+}
+
+/// Convenience for text: a calcium in mmol/L with mg/dL beside it.
+pub fn show_calcium(rules: &RuleSet, mmol: f64) -> String {
+    value_with_mg_dl(mmol, rules.analyte(Analyte::CalciumTotal).and_then(|r| r.molar_mass_g_per_mol))
+}

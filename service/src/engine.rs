@@ -1,0 +1,71 @@
+//! The assessment pipeline shared by the CLI and the HTTP service:
+//! request bytes -> facts -> assessment -> result Bundle.
+
+use serde_json::Value;
+
+use crate::clinical::status;
+use crate::fhir::outcome::RequestError;
+use crate::fhir::profiles::Profiles;
+use crate::fhir::{read, write};
+use crate::rules::LoadedRules;
+
+/// Everything an assessment needs, built once at start-up.
+#[derive(Debug)]
+pub struct Engine {
+    /// Rules in force.
+    pub rules: LoadedRules,
+    /// Compiled input profiles.
+    pub profiles: Profiles,
+    /// Base of canonical URLs in the output.
+    pub canonical_base: String,
+}
+
+/// The service version, from Cargo.
+pub const VERSION: &str = env!("CARGO_PKG_VERSION");
+
+/// Default base of canonical URLs (placeholder domain; see DEVELOPERS.md).
+pub const DEFAULT_CANONICAL_BASE: &str = "https://calcium-cds.example.org/fhir";
+
+/// What one assessment produced, for callers that log or count.
+#[derive(Debug, Clone)]
+pub struct Outcome {
+    /// The result Bundle.
+    pub bundle: Value,
+    /// GuidanceResponse.status.
+    pub status: &'static str,
+    /// DetectedIssue severity, when hypocalcemia was found.
+    pub severity: Option<&'static str>,
+    /// Number of inputs listed as set aside or not used.
+    pub not_used: usize,
+}
+
+impl Engine {
+    /// Build from loaded rules.
+    pub fn new(rules: LoadedRules) -> Result<Self, String> {
+        Ok(Self { rules, profiles: Profiles::compile()?, canonical_base: DEFAULT_CANONICAL_BASE.to_owned() })
+    }
+
+    /// Assess a request body. `now` is unix seconds; `now_fixed` stops a
+    /// `now` part in the request from overriding it.
+    pub fn assess(&self, body: &[u8], now: i64, now_fixed: bool) -> Result<Outcome, RequestError> {
+        let doc = read::parse(body)?;
+        let ingested = read::read_value(&doc, &self.rules.rules, &self.profiles, now, now_fixed)?;
+        let mut assessment = status::assess(&ingested.facts, &self.rules.rules);
+        assessment.unused.extend(status::unused_by_status(&ingested.facts));
+        let ctx = write::OutputContext {
+            rules: &self.rules,
+            software_version: VERSION,
+            canonical_base: &self.canonical_base,
+            now: ingested.facts.now,
+            // Over the parsed document, so that whitespace does not change ids.
+            request_digest: write::request_digest(&doc),
+        };
+        let bundle = write::result_bundle(&ctx, &ingested, &assessment);
+        Ok(Outcome {
+            bundle,
+            status: assessment.status.code(),
+            severity: assessment.finding.as_ref().and_then(|f| f.severity).map(|s| s.code()),
+            not_used: ingested.set_aside.len() + assessment.unused.len(),
+        })
+    }
+}

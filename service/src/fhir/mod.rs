@@ -1,0 +1,8 @@
+//! FHIR adapters: JSON in (`read`), resources out (`write`), and the pieces
+//! they share (profiles, dates, OperationOutcome).
+
+pub mod datetime;
+pub mod outcome;
+pub mod profiles;
+pub mod read;
+pub mod write;

@@ -1,0 +1,394 @@
+//! Assessment -> FHIR R4 resources: a collection Bundle holding a
+//! GuidanceResponse, the derived albumin-adjusted Observation, a DetectedIssue
+//! for hypocalcemia, an OperationOutcome of what was not used, the service as
+//! a Device, and a Provenance.
+//!
+//! Output is deterministic: ids are derived from the request content, the
+//! evaluation time and the rule-set hash, so the same input and clock give
+//! byte-identical output.
+
+use serde_json::{Value, json};
+use sha2::{Digest, Sha256};
+
+use super::datetime::format_instant;
+use super::outcome::{Issue, IssueCode, IssueSeverityLevel, operation_outcome};
+use super::read::{Ingested, UCUM};
+use crate::clinical::facts::{Analyte, Source};
+use crate::clinical::format::{num, value_with_mg_dl};
+use crate::clinical::status::{Assessment, CalciumFinding, Classification, DerivedAdjusted, GuidanceStatus};
+use crate::rules::LoadedRules;
+
+/// v3 ObservationInterpretation.
+const INTERPRETATION: &str = "http://terminology.hl7.org/CodeSystem/v3-ObservationInterpretation";
+/// Observation category codes.
+const OBS_CATEGORY: &str = "http://terminology.hl7.org/CodeSystem/observation-category";
+/// Provenance participant types (R4).
+const PARTICIPANT: &str = "http://terminology.hl7.org/CodeSystem/provenance-participant-type";
+
+/// What the writer needs besides the assessment.
+#[derive(Debug, Clone)]
+pub struct OutputContext<'a> {
+    /// Rules used.
+    pub rules: &'a LoadedRules,
+    /// Service version.
+    pub software_version: &'a str,
+    /// Base of our canonical URLs.
+    pub canonical_base: &'a str,
+    /// Evaluation time, unix seconds.
+    pub now: i64,
+    /// Digest of the request (canonical JSON), for ids.
+    pub request_digest: [u8; 32],
+}
+
+impl OutputContext<'_> {
+    fn uuid(&self, kind: &str) -> String {
+        let mut h = Sha256::new();
+        h.update(self.request_digest);
+        h.update(self.now.to_be_bytes());
+        h.update(self.rules.sha256.as_bytes());
+        h.update(kind.as_bytes());
+        let d = h.finalize();
+        let hex: String = d.iter().take(16).map(|b| format!("{b:02x}")).collect();
+        // Shape it as a UUID (version nibble 5, RFC 4122 variant) so that
+        // urn:uuid fullUrls are well formed.
+        let hex = format!("{}5{}{:x}{}", &hex[..12], &hex[13..16], (u8::from_str_radix(&hex[16..17], 16).unwrap_or(0) & 0x3) | 0x8, &hex[17..]);
+        format!("{}-{}-{}-{}-{}", &hex[..8], &hex[8..12], &hex[12..16], &hex[16..20], &hex[20..32])
+    }
+}
+
+/// sha256 of a request document in its canonical serialisation.
+pub fn request_digest(doc: &Value) -> [u8; 32] {
+    let bytes = serde_json::to_vec(doc).unwrap_or_default();
+    Sha256::digest(bytes).into()
+}
+
+fn reference(source: &Source) -> Value {
+    match &source.reference {
+        Some(r) => json!({ "reference": r, "type": source.resource_type }),
+        None => json!({ "type": source.resource_type, "display": format!("{} (no id in the request)", source.expression) }),
+    }
+}
+
+fn round(v: f64, decimals: i32) -> f64 {
+    let f = 10f64.powi(decimals);
+    (v * f).round() / f
+}
+
+fn quantity_mmol(v: f64) -> Value {
+    json!({ "value": round(v, 2), "unit": "mmol/L", "system": UCUM, "code": "mmol/L" })
+}
+
+fn effective(text: &str) -> (&'static str, Value) {
+    // Period effective times are carried as "start/end" text.
+    match text.split_once('/') {
+        Some((start, end)) => {
+            let mut p = serde_json::Map::new();
+            if !start.is_empty() {
+                p.insert("start".into(), json!(start));
+            }
+            if !end.is_empty() {
+                p.insert("end".into(), json!(end));
+            }
+            ("effectivePeriod", Value::Object(p))
+        }
+        None => ("effectiveDateTime", json!(text)),
+    }
+}
+
+/// Build the result Bundle.
+pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessment) -> Value {
+    let now = format_instant(ctx.now);
+    let rules = &ctx.rules.rules;
+    let id = |k: &str| ctx.uuid(k);
+    let urn = |k: &str| format!("urn:uuid:{}", ctx.uuid(k));
+    let subject = ingested
+        .patient_reference
+        .as_ref()
+        .map(|r| json!({ "reference": r, "type": "Patient" }))
+        .unwrap_or_else(|| json!({ "type": "Patient", "display": "the Patient in the request (no id)" }));
+    let device = json!({ "reference": urn("device"), "type": "Device" });
+    let mut entries = Vec::new();
+    let mut targets = Vec::new();
+
+    // Derived albumin-adjusted Observation.
+    if let Some(d) = &a.derived {
+        let obs = derived_observation(ctx, d, &subject, &device, &now);
+        targets.push(json!({ "reference": urn("adjusted-calcium"), "type": "Observation" }));
+        entries.push(json!({ "fullUrl": urn("adjusted-calcium"), "resource": obs }));
+    }
+
+    // DetectedIssue for hypocalcemia.
+    let low = a.finding.as_ref().filter(|f| f.is_low());
+    if let Some(f) = low {
+        let mut evidence_refs: Vec<Value> = f.evidence.iter().map(reference).collect();
+        if a.derived.is_some() {
+            evidence_refs.insert(0, json!({ "reference": urn("adjusted-calcium"), "type": "Observation" }));
+        }
+        let mut code = json!({ "text": "Hypocalcemia" });
+        if let Some(c) = &rules.output_codes.hypocalcemia {
+            code["coding"] = json!([{ "system": c.system, "code": c.code, "display": c.display }]);
+        }
+        let issue = json!({
+            "resourceType": "DetectedIssue",
+            "id": id("hypocalcemia"),
+            "status": "preliminary",
+            "code": code,
+            "severity": f.severity.map_or("low", |s| s.code()),
+            "patient": subject,
+            "identifiedDateTime": now,
+            "author": device,
+            "evidence": [{ "detail": evidence_refs }],
+            "detail": issue_detail(ctx, f, a),
+        });
+        targets.push(json!({ "reference": urn("hypocalcemia"), "type": "DetectedIssue" }));
+        entries.push(json!({ "fullUrl": urn("hypocalcemia"), "resource": issue }));
+    }
+
+    // OperationOutcome of everything not used.
+    let mut issues: Vec<Issue> = ingested
+        .set_aside
+        .iter()
+        .map(|s| Issue {
+            severity: s.severity,
+            code: s.code,
+            expression: vec![s.expression.clone()],
+            diagnostics: format!("{}: {}", s.resource, s.reason),
+        })
+        .collect();
+    issues.extend(a.unused.iter().map(|u| Issue {
+        severity: IssueSeverityLevel::Information,
+        code: IssueCode::Informational,
+        expression: vec![u.source.expression.clone()],
+        diagnostics: format!("{}: not used: {}", u.source.label(), u.reason),
+    }));
+    if issues.is_empty() {
+        issues.push(Issue {
+            severity: IssueSeverityLevel::Information,
+            code: IssueCode::Informational,
+            expression: Vec::new(),
+            diagnostics: "Every input in the request was read; none was set aside.".into(),
+        });
+    }
+    let oo = operation_outcome(Some(&id("outcome")), &issues);
+    targets.push(json!({ "reference": urn("outcome"), "type": "OperationOutcome" }));
+
+    // GuidanceResponse first.
+    let mut notes = vec![json!({ "text": summary(ctx, a) })];
+    if !a.basis.is_empty() {
+        notes.push(json!({ "text": format!("Basis: {}", a.basis.join(" ")) }));
+    }
+    for c in &a.cautions {
+        notes.push(json!({ "text": format!("Caution: {c}") }));
+    }
+    for n in &a.data_needs {
+        notes.push(json!({ "text": format!("Data needed ({}): {}", analyte_label(ctx, n.analyte), n.reason) }));
+    }
+    notes.push(json!({ "text": rules.texts.advisory }));
+    notes.push(json!({ "text": format!("Rule set: {}.", ctx.rules.label()) }));
+    let mut gr = json!({
+        "resourceType": "GuidanceResponse",
+        "id": id("guidance"),
+        "moduleUri": format!("{}/OperationDefinition/assess", ctx.canonical_base),
+        "status": a.status.code(),
+        "subject": subject,
+        "occurrenceDateTime": now,
+        "performer": device,
+        "note": notes,
+        "evaluationMessage": [{ "reference": urn("outcome"), "type": "OperationOutcome" }],
+    });
+    if let Some(b) = &ingested.bundle_id {
+        gr["requestIdentifier"] = json!({ "value": b });
+    }
+    let requirements = data_requirements(ctx, a);
+    if !requirements.is_empty() {
+        gr["dataRequirement"] = json!(requirements);
+    }
+    targets.insert(0, json!({ "reference": urn("guidance"), "type": "GuidanceResponse" }));
+    entries.insert(0, json!({ "fullUrl": urn("guidance"), "resource": gr }));
+    entries.push(json!({ "fullUrl": urn("outcome"), "resource": oo }));
+
+    // The service as a Device, and Provenance.
+    entries.push(json!({
+        "fullUrl": urn("device"),
+        "resource": {
+            "resourceType": "Device",
+            "id": id("device"),
+            "deviceName": [{ "name": "calcium-cds", "type": "manufacturer-name" }],
+            "type": { "text": "Clinical decision support service (software)" },
+            "version": [{ "value": ctx.software_version }],
+            "note": [{ "text": format!("Rule set {}.", ctx.rules.label()) }],
+        }
+    }));
+    let mut used: Vec<&Source> = Vec::new();
+    if let Some(f) = &a.finding {
+        used.extend(f.evidence.iter());
+    }
+    used.push(&ingested.facts.patient.source);
+    let entities: Vec<Value> = used.into_iter().map(|s| json!({ "role": "source", "what": reference(s) })).collect();
+    entries.push(json!({
+        "fullUrl": urn("provenance"),
+        "resource": {
+            "resourceType": "Provenance",
+            "id": id("provenance"),
+            "target": targets,
+            "recorded": now,
+            "policy": [format!("{}/rules/{}/{}?sha256={}", ctx.canonical_base, rules.ruleset.name, rules.ruleset.version, ctx.rules.sha256)],
+            "activity": { "text": "Calcium status assessment (calcium-cds)" },
+            "agent": [{
+                "type": { "coding": [{ "system": PARTICIPANT, "code": "assembler", "display": "Assembler" }] },
+                "who": device,
+            }],
+            "entity": entities,
+        }
+    }));
+
+    json!({
+        "resourceType": "Bundle",
+        "id": id("bundle"),
+        "type": "collection",
+        "timestamp": now,
+        "entry": entries,
+    })
+}
+
+fn analyte_label(ctx: &OutputContext<'_>, analyte: Analyte) -> String {
+    ctx.rules.rules.analyte(analyte).map_or_else(|| analyte.key().to_owned(), |r| r.label.clone())
+}
+
+fn summary(ctx: &OutputContext<'_>, a: &Assessment) -> String {
+    let rules = &ctx.rules.rules;
+    let mass = rules.analyte(Analyte::CalciumTotal).and_then(|r| r.molar_mass_g_per_mol);
+    match (&a.finding, a.status) {
+        (Some(f), _) => {
+            let shown = value_with_mg_dl(f.value_mmol_l, mass);
+            match f.classification {
+                Classification::Low => format!(
+                    "Hypocalcemia{}{}: {} {} against the {} interval {}-{} mmol/L.",
+                    f.grade.as_ref().map(|g| format!(", {} grade", g.grade)).unwrap_or_else(|| ", below the reference interval".into()),
+                    if f.is_symptomatic() { ", symptomatic" } else { "" },
+                    f.measure.label(),
+                    shown,
+                    f.interval.band_label,
+                    num(f.interval.lower, 2),
+                    num(f.interval.upper, 2)
+                ),
+                Classification::Normal => format!(
+                    "No hypocalcemia: {} {} is within the {} interval {}-{} mmol/L.",
+                    f.measure.label(),
+                    shown,
+                    f.interval.band_label,
+                    num(f.interval.lower, 2),
+                    num(f.interval.upper, 2)
+                ),
+                Classification::High => format!(
+                    "No hypocalcemia: {} {} is above the {} interval {}-{} mmol/L.",
+                    f.measure.label(),
+                    shown,
+                    f.interval.band_label,
+                    num(f.interval.lower, 2),
+                    num(f.interval.upper, 2)
+                ),
+            }
+        }
+        (None, GuidanceStatus::Failure) => "Not assessed: the patient is outside what these rules cover.".into(),
+        (None, _) => "Not assessed: the data needed for a calcium status is missing or could not be used.".into(),
+    }
+}
+
+fn issue_detail(ctx: &OutputContext<'_>, f: &CalciumFinding, a: &Assessment) -> String {
+    let mass = ctx.rules.rules.analyte(Analyte::CalciumTotal).and_then(|r| r.molar_mass_g_per_mol);
+    let mut parts = vec![format!(
+        "{} {} at {} is below the lower limit {} mmol/L for {} (source: {}).",
+        capital(f.measure.label()),
+        value_with_mg_dl(f.value_mmol_l, mass),
+        f.effective_text,
+        num(f.interval.lower, 2),
+        f.interval.band_label,
+        f.interval.source
+    )];
+    if let Some(g) = &f.grade {
+        parts.push(format!("Grade {}: at or below {} mmol/L (source: {}).", g.grade, num(g.at_or_below, 2), g.source));
+    }
+    if f.is_symptomatic() {
+        let mut s: Vec<String> = f.symptoms.iter().map(|s| s.symptom.label().to_owned()).collect();
+        if let Some(q) = f.qtc.as_ref().filter(|q| q.prolonged) {
+            s.push(format!("QTc {} ms (> {} ms)", num(q.value_ms, 0), num(q.threshold_ms, 0)));
+        }
+        parts.push(format!("Symptomatic: {}.", s.join(", ")));
+    }
+    if let Some(sev) = f.severity {
+        parts.push(format!("Severity {}.", sev.code()));
+    }
+    if f.preliminary {
+        parts.push("Based on a preliminary result.".into());
+    }
+    parts.extend(a.cautions.iter().cloned());
+    parts.push(ctx.rules.rules.texts.advisory.clone());
+    parts.join(" ")
+}
+
+fn capital(s: &str) -> String {
+    let mut c = s.chars();
+    c.next().map(|f| f.to_uppercase().collect::<String>() + c.as_str()).unwrap_or_default()
+}
+
+fn derived_observation(ctx: &OutputContext<'_>, d: &DerivedAdjusted, subject: &Value, device: &Value, now: &str) -> Value {
+    let code = &ctx.rules.rules.output_codes.adjusted_calcium;
+    let (interp_code, interp_display) = d.classification.interpretation(d.severe);
+    let (eff_key, eff_value) = effective(&d.effective_text);
+    let mut obs = json!({
+        "resourceType": "Observation",
+        "id": ctx.uuid("adjusted-calcium"),
+        "status": if d.preliminary { "preliminary" } else { "final" },
+        "category": [{ "coding": [{ "system": OBS_CATEGORY, "code": "laboratory", "display": "Laboratory" }] }],
+        "code": {
+            "coding": [{ "system": code.system, "code": code.code, "display": code.display }],
+            "text": format!("Calcium adjusted for albumin, calculated by calcium-cds (estimate): {} mmol/L = {} mg/dL", num(d.value_mmol_l, 2), num(d.value_mg_dl, 2)),
+        },
+        "subject": subject,
+        eff_key: eff_value,
+        "issued": now,
+        "performer": [device],
+        "valueQuantity": quantity_mmol(d.value_mmol_l),
+        "interpretation": [{ "coding": [{ "system": INTERPRETATION, "code": interp_code, "display": interp_display }] }],
+        "method": { "text": d.formula },
+        "device": device,
+        "derivedFrom": [reference(&d.calcium), reference(&d.albumin)],
+        "note": [
+            { "text": format!("Arithmetic: {}", d.arithmetic) },
+            { "text": ctx.rules.rules.albumin_adjustment.caution },
+            { "text": ctx.rules.rules.texts.advisory },
+        ],
+    });
+    if let Some(i) = &d.interval {
+        obs["referenceRange"] = json!([{
+            "low": quantity_mmol(i.lower),
+            "high": quantity_mmol(i.upper),
+            "text": format!("{} (source: {})", i.band_label, i.source),
+        }]);
+    }
+    obs
+}
+
+fn data_requirements(ctx: &OutputContext<'_>, a: &Assessment) -> Vec<Value> {
+    let mut out = Vec::new();
+    if a.needs_birth_date {
+        out.push(json!({ "type": "Patient", "mustSupport": ["birthDate"] }));
+    }
+    for need in &a.data_needs {
+        let codes: Vec<Value> = ctx
+            .rules
+            .rules
+            .observation_codes
+            .iter()
+            .filter(|c| c.analyte == need.analyte)
+            .map(|c| json!({ "system": c.system, "code": c.code, "display": c.display }))
+            .collect();
+        let mut req = json!({ "type": "Observation" });
+        if !codes.is_empty() {
+            req["codeFilter"] = json!([{ "path": "code", "code": codes }]);
+        }
+        out.push(req);
+    }
+    out
+}

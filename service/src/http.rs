@@ -1,0 +1,224 @@
+//! The HTTP service: FHIR R4 over actix-web.
+//!
+//! `Application::build` binds the listener (port 0 picks a free port, which
+//! the tests use) and wires the routes; errors are always FHIR
+//! OperationOutcome bodies with a correct status, never actix's plain text.
+
+use std::net::TcpListener;
+use std::sync::Arc;
+use std::sync::atomic::{AtomicBool, AtomicU64, Ordering};
+use std::time::{Instant, SystemTime, UNIX_EPOCH};
+
+use actix_web::body::MessageBody;
+use actix_web::dev::{Server, ServiceRequest, ServiceResponse};
+use actix_web::http::StatusCode;
+use actix_web::http::header::{self, HeaderValue};
+use actix_web::middleware::Next;
+use actix_web::{App, HttpRequest, HttpResponse, HttpServer, web};
+use serde_json::Value;
+
+use crate::config::ServeArgs;
+use crate::engine::{Engine, VERSION};
+use crate::fhir::outcome::{IssueCode, RequestError};
+
+/// FHIR JSON media type.
+pub const FHIR_JSON: &str = "application/fhir+json; charset=utf-8";
+
+const CAPABILITY: &str = include_str!("../../fhir-profiles/CapabilityStatement-calcium-cds.json");
+const OPERATION: &str = include_str!("../../fhir-profiles/OperationDefinition-assess.json");
+
+/// Shared state.
+pub struct AppState {
+    engine: Engine,
+    body_limit: usize,
+    ready: AtomicBool,
+    capability: Value,
+    operation: Value,
+}
+
+/// A built, bound application.
+pub struct Application {
+    port: u16,
+    server: Server,
+    state: Arc<AppState>,
+}
+
+impl Application {
+    /// Bind and wire the service.
+    pub fn build(settings: &ServeArgs, engine: Engine) -> Result<Self, String> {
+        let listener = TcpListener::bind(settings.listen).map_err(|e| format!("cannot listen on {}: {e}", settings.listen))?;
+        let port = listener.local_addr().map_err(|e| e.to_string())?.port();
+        let mut capability: Value = serde_json::from_str(CAPABILITY).map_err(|e| format!("CapabilityStatement: {e}"))?;
+        capability["software"]["version"] = Value::String(VERSION.to_owned());
+        let operation: Value = serde_json::from_str(OPERATION).map_err(|e| format!("OperationDefinition: {e}"))?;
+        let state = Arc::new(AppState {
+            engine,
+            body_limit: settings.body_limit,
+            ready: AtomicBool::new(false),
+            capability,
+            operation,
+        });
+        let data = web::Data::from(state.clone());
+        let server = HttpServer::new(move || {
+            App::new()
+                .app_data(data.clone())
+                .wrap(actix_web::middleware::from_fn(access_log))
+                .route("/fhir/$assess", web::post().to(assess))
+                .route("/fhir/metadata", web::get().to(metadata))
+                .route("/fhir/OperationDefinition/assess", web::get().to(operation_definition))
+                .route("/livez", web::get().to(livez))
+                .route("/readyz", web::get().to(readyz))
+                .default_service(web::to(not_found))
+        })
+        .listen(listener)
+        .map_err(|e| e.to_string())?
+        .run();
+        state.ready.store(true, Ordering::SeqCst);
+        Ok(Self { port, server, state })
+    }
+
+    /// The bound port.
+    pub fn port(&self) -> u16 {
+        self.port
+    }
+
+    /// Serve until stopped (SIGINT/SIGTERM stop it gracefully).
+    pub async fn run_until_stopped(self) -> std::io::Result<()> {
+        let state = self.state;
+        let result = self.server.await;
+        state.ready.store(false, Ordering::SeqCst);
+        result
+    }
+}
+
+fn fhir_response(status: StatusCode, body: &Value) -> HttpResponse {
+    HttpResponse::build(status).insert_header((header::CONTENT_TYPE, FHIR_JSON)).body(body.to_string())
+}
+
+fn error_response(err: &RequestError) -> HttpResponse {
+    let status = StatusCode::from_u16(err.status).unwrap_or(StatusCode::UNPROCESSABLE_ENTITY);
+    fhir_response(status, &err.to_operation_outcome())
+}
+
+fn media_type_ok(req: &HttpRequest) -> bool {
+    let Some(ct) = req.headers().get(header::CONTENT_TYPE).and_then(|v| v.to_str().ok()) else { return false };
+    let essence = ct.split(';').next().unwrap_or("").trim().to_ascii_lowercase();
+    essence == "application/fhir+json" || essence == "application/json"
+}
+
+fn now_unix() -> i64 {
+    SystemTime::now().duration_since(UNIX_EPOCH).map(|d| d.as_secs() as i64).unwrap_or(0)
+}
+
+async fn assess(req: HttpRequest, payload: web::Payload, state: web::Data<AppState>) -> HttpResponse {
+    if !media_type_ok(&req) {
+        return error_response(&RequestError::single(
+            415,
+            IssueCode::NotSupported,
+            "",
+            "Content-Type must be application/fhir+json (or application/json).",
+        ));
+    }
+    let too_large = || {
+        error_response(&RequestError::single(
+            413,
+            IssueCode::TooCostly,
+            "",
+            format!("The request body is larger than the limit of {} bytes.", state.body_limit),
+        ))
+    };
+    let declared = req
+        .headers()
+        .get(header::CONTENT_LENGTH)
+        .and_then(|v| v.to_str().ok())
+        .and_then(|v| v.parse::<usize>().ok());
+    if declared.is_some_and(|n| n > state.body_limit) {
+        return too_large();
+    }
+    let body = match payload.to_bytes_limited(state.body_limit).await {
+        Err(_) => return too_large(),
+        Ok(Err(_)) => {
+            return error_response(&RequestError::single(400, IssueCode::Structure, "", "The request body could not be read."));
+        }
+        Ok(Ok(b)) => b,
+    };
+    match state.engine.assess(&body, now_unix(), false) {
+        Ok(outcome) => {
+            tracing::info!(
+                guidance_status = outcome.status,
+                severity = outcome.severity.unwrap_or("none"),
+                not_used = outcome.not_used,
+                "assessment"
+            );
+            fhir_response(StatusCode::OK, &outcome.bundle)
+        }
+        Err(err) => {
+            tracing::info!(status = err.status, issues = err.issues.len(), "request refused");
+            error_response(&err)
+        }
+    }
+}
+
+async fn metadata(state: web::Data<AppState>) -> HttpResponse {
+    fhir_response(StatusCode::OK, &state.capability)
+}
+
+async fn operation_definition(state: web::Data<AppState>) -> HttpResponse {
+    fhir_response(StatusCode::OK, &state.operation)
+}
+
+async fn livez() -> HttpResponse {
+    HttpResponse::Ok().content_type("application/json").body(r#"{"status":"live"}"#)
+}
+
+async fn readyz(state: web::Data<AppState>) -> HttpResponse {
+    if state.ready.load(Ordering::SeqCst) {
+        HttpResponse::Ok().content_type("application/json").body(r#"{"status":"ready"}"#)
+    } else {
+        HttpResponse::ServiceUnavailable().content_type("application/json").body(r#"{"status":"not ready"}"#)
+    }
+}
+
+async fn not_found(req: HttpRequest) -> HttpResponse {
+    let known = ["/fhir/$assess", "/fhir/metadata", "/fhir/OperationDefinition/assess", "/livez", "/readyz"];
+    if known.contains(&req.path()) {
+        return error_response(&RequestError::single(405, IssueCode::NotSupported, "", format!("Method {} is not allowed here.", req.method())));
+    }
+    error_response(&RequestError::single(404, IssueCode::NotFound, "", "No such endpoint. See GET /fhir/metadata."))
+}
+
+static NEXT_ID: AtomicU64 = AtomicU64::new(1);
+
+fn request_id(req: &ServiceRequest) -> String {
+    let given = req.headers().get("x-request-id").and_then(|v| v.to_str().ok()).filter(|v| {
+        !v.is_empty() && v.len() <= 64 && v.bytes().all(|b| b.is_ascii_alphanumeric() || b"-_.".contains(&b))
+    });
+    match given {
+        Some(v) => v.to_owned(),
+        None => format!("req-{:x}-{}", std::process::id(), NEXT_ID.fetch_add(1, Ordering::Relaxed)),
+    }
+}
+
+/// One log line per request: method, route template, status, latency, id.
+async fn access_log(
+    req: ServiceRequest,
+    next: Next<impl MessageBody + 'static>,
+) -> Result<ServiceResponse<impl MessageBody>, actix_web::Error> {
+    let start = Instant::now();
+    let id = request_id(&req);
+    let method = req.method().to_string();
+    let route = req.match_pattern().unwrap_or_else(|| "unmatched".to_owned());
+    let mut res = next.call(req).await?;
+    if let Ok(v) = HeaderValue::from_str(&id) {
+        res.headers_mut().insert(header::HeaderName::from_static("x-request-id"), v);
+    }
+    tracing::info!(
+        method = %method,
+        route = %route,
+        status = res.status().as_u16(),
+        latency_ms = start.elapsed().as_secs_f64() * 1000.0,
+        request_id = %id,
+        "request"
+    );
+    Ok(res)
+}

@@ -1,0 +1,16 @@
+//! calcium-cds: a stateless HL7 FHIR R4 decision-support service for
+//! hypocalcemia in children.
+//!
+//! Data walks one way: FHIR JSON (`fhir::read`) -> typed facts
+//! (`clinical::facts`) -> the pure clinical core (`clinical::status`) ->
+//! FHIR resources (`fhir::write`). Rules are data (`rules`). The adapters
+//! around the core are `http`, `cli`, `config` and `telemetry`.
+
+pub mod cli;
+pub mod clinical;
+pub mod config;
+pub mod engine;
+pub mod fhir;
+pub mod http;
+pub mod rules;
+pub mod telemetry;

@@ -1,0 +1,257 @@
+//! Loading rule data: embedded TOML defaults, an optional site file layered on
+//! top, the merged document checked against the rule schema, then typed.
+//!
+//! Merge (DEVELOPERS.md: site rule files): tables merge key by key; arrays
+//! replace the default, except the code lists (`observation_codes`,
+//! `symptom_codes`), where site entries are added and a site entry with the
+//! same system and code replaces the default one.
+
+use serde_json::Value;
+use sha2::{Digest, Sha256};
+
+use super::model::RuleSet;
+
+/// The embedded default rule files, merged in this order.
+pub const DEFAULT_FILES: &[(&str, &str)] = &[
+    ("calcium.toml", include_str!("../../rules/calcium.toml")),
+    ("analytes.toml", include_str!("../../rules/analytes.toml")),
+    ("codes.toml", include_str!("../../rules/codes.toml")),
+];
+
+/// The JSON Schema every merged rule document must pass.
+pub const RULES_SCHEMA: &str = include_str!("../../../fhir-profiles/schemas/rules.schema.json");
+
+const ADDITIVE_LISTS: &[&str] = &["observation_codes", "symptom_codes"];
+
+/// Why rules could not be loaded.
+#[derive(Debug, thiserror::Error)]
+pub enum RuleError {
+    /// A file is not valid TOML.
+    #[error("{file}: not valid TOML: {message}")]
+    Syntax {
+        /// File name.
+        file: String,
+        /// Parser message with line and column.
+        message: String,
+    },
+    /// The merged rules break the schema.
+    #[error("rule data does not match the rule schema:\n{}", .0.join("\n"))]
+    Schema(Vec<String>),
+    /// The merged rules are inconsistent.
+    #[error("rule data is inconsistent:\n{}", .0.join("\n"))]
+    Inconsistent(Vec<String>),
+    /// The schema itself does not compile (a build defect).
+    #[error("the rule schema does not compile: {0}")]
+    BadSchema(String),
+}
+
+/// Rules ready for use, with their identity.
+#[derive(Debug, Clone)]
+pub struct LoadedRules {
+    /// The typed rules.
+    pub rules: RuleSet,
+    /// sha256 of the canonical JSON of the merged document, hex.
+    pub sha256: String,
+}
+
+impl LoadedRules {
+    /// "name version (sha256 abcd1234...)".
+    pub fn label(&self) -> String {
+        let short = self.sha256.get(..12).unwrap_or(&self.sha256);
+        format!("{} {} (sha256 {short})", self.rules.ruleset.name, self.rules.ruleset.version)
+    }
+}
+
+fn parse_toml(file: &str, text: &str) -> Result<Value, RuleError> {
+    let table: toml::Table =
+        toml::from_str(text).map_err(|e| RuleError::Syntax { file: file.to_owned(), message: e.to_string() })?;
+    serde_json::to_value(table).map_err(|e| RuleError::Syntax { file: file.to_owned(), message: e.to_string() })
+}
+
+fn code_key(v: &Value) -> Option<(String, String)> {
+    Some((v.get("system")?.as_str()?.to_owned(), v.get("code")?.as_str()?.to_owned()))
+}
+
+/// Merge `over` into `base` (see the module docs for the rules).
+pub fn merge(base: &mut Value, over: Value, path: &str) {
+    match (base, over) {
+        (Value::Object(b), Value::Object(o)) => {
+            for (k, v) in o {
+                let child = if path.is_empty() { k.clone() } else { format!("{path}.{k}") };
+                match b.get_mut(&k) {
+                    Some(slot) => merge(slot, v, &child),
+                    None => {
+                        b.insert(k, v);
+                    }
+                }
+            }
+        }
+        (Value::Array(b), Value::Array(o)) if ADDITIVE_LISTS.contains(&path) => {
+            for item in o {
+                let key = code_key(&item);
+                match b.iter_mut().find(|x| key.is_some() && code_key(x) == key) {
+                    Some(slot) => *slot = item,
+                    None => b.push(item),
+                }
+            }
+        }
+        (slot, v) => *slot = v,
+    }
+}
+
+/// Load the embedded defaults, plus a site file `(name, text)` if given.
+pub fn load(site: Option<(&str, &str)>) -> Result<LoadedRules, RuleError> {
+    let mut doc = Value::Object(serde_json::Map::new());
+    for (name, text) in DEFAULT_FILES {
+        merge(&mut doc, parse_toml(name, text)?, "");
+    }
+    if let Some((name, text)) = site {
+        let mut over = parse_toml(name, text)?;
+        if let Some(rs) = over.get_mut("ruleset").and_then(Value::as_object_mut) {
+            rs.entry("site").or_insert_with(|| Value::String(name.to_owned()));
+        } else if let Some(obj) = over.as_object_mut() {
+            obj.insert("ruleset".into(), serde_json::json!({ "site": name }));
+        }
+        merge(&mut doc, over, "");
+    }
+    from_document(doc)
+}
+
+/// Check and type a merged rule document.
+pub fn from_document(doc: Value) -> Result<LoadedRules, RuleError> {
+    let schema: Value = serde_json::from_str(RULES_SCHEMA).map_err(|e| RuleError::BadSchema(e.to_string()))?;
+    let validator = jsonschema::validator_for(&schema).map_err(|e| RuleError::BadSchema(e.to_string()))?;
+    let errors: Vec<String> = validator
+        .iter_errors(&doc)
+        .map(|e| format!("  at {}: {}", pointer_to_path(e.instance_path().as_str()), e))
+        .collect();
+    if !errors.is_empty() {
+        return Err(RuleError::Schema(errors));
+    }
+    let rules: RuleSet = serde_json::from_value(doc.clone()).map_err(|e| RuleError::Schema(vec![format!("  {e}")]))?;
+    consistency(&rules)?;
+    // serde_json's map is ordered by key, so this serialisation is canonical.
+    let canonical = serde_json::to_vec(&doc).map_err(|e| RuleError::Schema(vec![e.to_string()]))?;
+    let sha256 = hex(&Sha256::digest(&canonical));
+    Ok(LoadedRules { rules, sha256 })
+}
+
+fn pointer_to_path(pointer: &str) -> String {
+    if pointer.is_empty() {
+        return "(top level)".to_owned();
+    }
+    let mut out = String::new();
+    for part in pointer.trim_start_matches('/').split('/') {
+        if part.chars().all(|c| c.is_ascii_digit()) {
+            out.push_str(&format!("[{part}]"));
+        } else {
+            if !out.is_empty() {
+                out.push('.');
+            }
+            out.push_str(&part.replace("~1", "/").replace("~0", "~"));
+        }
+    }
+    out
+}
+
+fn consistency(rules: &RuleSet) -> Result<(), RuleError> {
+    let mut problems = Vec::new();
+    for band in &rules.bands {
+        for (name, i) in [("ionized", &band.ionized), ("total", &band.total), ("adjusted", &band.adjusted)] {
+            if i.lower >= i.upper {
+                problems.push(format!("  bands.{}.{name}: lower {} is not below upper {}", band.id, i.lower, i.upper));
+            }
+            for g in &i.grades {
+                if g.at_or_below >= i.lower {
+                    problems.push(format!(
+                        "  bands.{}.{name}: grade '{}' threshold {} is not below the lower limit {}",
+                        band.id, g.grade, g.at_or_below, i.lower
+                    ));
+                }
+            }
+        }
+    }
+    let mut seen = std::collections::BTreeSet::new();
+    for c in &rules.observation_codes {
+        if !seen.insert((&c.system, &c.code)) {
+            problems.push(format!("  observation_codes: {} {} is listed twice", c.system, c.code));
+        }
+        if rules.analyte(c.analyte).is_none() {
+            problems.push(format!("  observation_codes: {} maps to analyte {} which has no [analytes] entry", c.code, c.analyte.key()));
+        }
+    }
+    for (key, a) in &rules.analytes {
+        if crate::clinical::units::lookup(&a.canonical_unit).is_none() {
+            problems.push(format!("  analytes.{}: canonical unit '{}' is not an accepted UCUM code", key.key(), a.canonical_unit));
+        }
+        if a.plausible.min > a.plausible.max {
+            problems.push(format!("  analytes.{}: plausible min above max", key.key()));
+        }
+    }
+    if problems.is_empty() { Ok(()) } else { Err(RuleError::Inconsistent(problems)) }
+}
+
+fn hex(bytes: &[u8]) -> String {
+    bytes.iter().map(|b| format!("{b:02x}")).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn embedded_defaults_load() {
+        let loaded = load(None).unwrap();
+        assert_eq!(loaded.rules.ruleset.name, "calcium-cds-default");
+        assert_eq!(loaded.sha256.len(), 64);
+        assert!(!loaded.rules.bands.is_empty());
+    }
+
+    #[test]
+    fn site_file_overrides_a_value_and_adds_a_local_code() {
+        let site = r#"
+            [ruleset]
+            version = "site-1"
+            [windows]
+            albumin_pairing_hours = 6
+            [[observation_codes]]
+            system = "urn:oid:1.2.3.4.5"
+            code = "ICA-LOCAL"
+            display = "Ionized calcium (local code)"
+            analyte = "calcium_ionized"
+            property = "substance_concentration"
+            specimen = "blood"
+            source = "Site laboratory catalogue"
+        "#;
+        let base = load(None).unwrap();
+        let loaded = load(Some(("site.toml", site))).unwrap();
+        assert_eq!(loaded.rules.windows.albumin_pairing_hours, 6.0);
+        assert_eq!(loaded.rules.ruleset.version, "site-1");
+        assert_eq!(loaded.rules.ruleset.site.as_deref(), Some("site.toml"));
+        assert_eq!(loaded.rules.observation_codes.len(), base.rules.observation_codes.len() + 1);
+        assert_ne!(loaded.sha256, base.sha256);
+    }
+
+    #[test]
+    fn bad_site_files_are_refused_with_the_place() {
+        let err = load(Some(("site.toml", "[windows\n"))).unwrap_err();
+        assert!(matches!(err, RuleError::Syntax { .. }), "{err}");
+        let err = load(Some(("site.toml", "[windows]\nalbumin_pairing_hours = \"six\"\n"))).unwrap_err();
+        assert!(err.to_string().contains("windows.albumin_pairing_hours"), "{err}");
+        let err = load(Some(("site.toml", "[[bands]]\nid = \"x\"\n"))).unwrap_err();
+        assert!(matches!(err, RuleError::Schema(_)), "{err}");
+        let inconsistent = "[bands.0]\n";
+        assert!(load(Some(("site.toml", inconsistent))).is_err());
+    }
+
+    #[test]
+    fn grade_above_lower_limit_is_inconsistent() {
+        let mut doc = Value::Object(serde_json::Map::new());
+        for (name, text) in DEFAULT_FILES {
+            merge(&mut doc, parse_toml(name, text).unwrap(), "");
+        }
+        doc["bands"][0]["ionized"]["grades"][0]["at_or_below"] = serde_json::json!(5.0);
+        let err = from_document(doc).unwrap_err();
+        assert!(matches!(err, RuleError::Inconsistent(_)), "{err}");
+    }
+}
