@@ -1,1 +1,14 @@
+//! One integration-test binary (ripgrep style): each module says what goes in it.
 
+// Shared harness: spawn_app, the official R4 schema check, request helpers.
+mod helpers;
+// The HTTP surface: metadata, OperationDefinition, probes, routing, media types.
+mod http;
+// Bad input: each case with its status and the OperationOutcome expression it must name.
+mod bad_input;
+// Every example bundle through the CLI binary and the service: expected results, schema validity, determinism.
+mod examples;
+// Check values produced by outside reference libraries (UCUM, molecular masses) against our tables.
+mod reference_values;
+// Clinical scenarios over HTTP: status, severity, adjustment, banding.
+mod clinical;
