@@ -126,3 +126,79 @@ pub fn choose<'r>(
     }
     Ok(BandChoice { candidates, age_min, age_max, notes })
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::clinical::time::CivilDate;
+
+    fn rules() -> RuleSet {
+        crate::rules::load::load(None).unwrap().rules
+    }
+
+    fn on(y: i32, m: u8, d: u8) -> When {
+        let date = CivilDate::new(y, m, d).unwrap();
+        let noon = date.days_since_epoch() * 86_400 + 12 * 3600;
+        When { earliest: noon, latest: noon, local_date_earliest: date, local_date_latest: date }
+    }
+
+    fn full(y: i32, m: u8, d: u8) -> PartialDate {
+        PartialDate::Full(CivilDate::new(y, m, d).unwrap())
+    }
+
+    fn band_of(rules: &RuleSet, birth: PartialDate, when: When, ga: Option<f64>) -> Vec<String> {
+        choose(rules, birth, &when, ga).unwrap().candidates.iter().map(|b| b.id.clone()).collect()
+    }
+
+    #[test]
+    fn each_age_edge_falls_in_the_right_band() {
+        let r = rules();
+        let birth = full(2024, 1, 1);
+        // 28 completed days: still a neonate; 29: an infant.
+        assert_eq!(band_of(&r, birth, on(2024, 1, 29), None), ["term-neonate"]);
+        assert_eq!(band_of(&r, birth, on(2024, 1, 30), None), ["infant"]);
+        // 23 completed months: infant; 24: child.
+        assert_eq!(band_of(&r, birth, on(2025, 12, 31), None), ["infant"]);
+        assert_eq!(band_of(&r, birth, on(2026, 1, 1), None), ["child"]);
+        // Day before the 12th birthday: child; on it: adolescent.
+        assert_eq!(band_of(&r, birth, on(2035, 12, 31), None), ["child"]);
+        assert_eq!(band_of(&r, birth, on(2036, 1, 1), None), ["adolescent"]);
+        // Day before the 19th birthday: adolescent; on it: outside the rules.
+        assert_eq!(band_of(&r, birth, on(2042, 12, 31), None), ["adolescent"]);
+        assert!(matches!(choose(&r, birth, &on(2043, 1, 1), None), Err(NoBand::OutsideScope(_))));
+        // Day of birth.
+        assert_eq!(band_of(&r, birth, on(2024, 1, 1), None), ["term-neonate"]);
+    }
+
+    #[test]
+    fn preterm_band_needs_a_recorded_gestational_age_below_37_weeks() {
+        let r = rules();
+        let birth = full(2026, 11, 28);
+        assert_eq!(band_of(&r, birth, on(2026, 11, 30), Some(33.0)), ["preterm-neonate"]);
+        assert_eq!(band_of(&r, birth, on(2026, 11, 30), Some(37.0)), ["term-neonate"]);
+        let choice = choose(&r, birth, &on(2026, 11, 30), None).unwrap();
+        assert_eq!(choice.candidates[0].id, "term-neonate");
+        assert!(choice.notes.iter().any(|n| n.contains("Gestational age at birth is not recorded")));
+    }
+
+    #[test]
+    fn partial_birth_dates_never_give_neonatal_bands() {
+        let r = rules();
+        // Born "2026-11": on 2026-11-30 the baby is 0-29 days old.
+        let choice = choose(&r, PartialDate::YearMonth(2026, 11), &on(2026, 11, 30), None).unwrap();
+        let ids: Vec<&str> = choice.candidates.iter().map(|b| b.id.as_str()).collect();
+        assert_eq!(ids, ["infant"]);
+        assert!(choice.notes.iter().any(|n| n.contains("Neonatal ranges need a full birth date")));
+        // Born "2024": 1 year 11 months to 2 years 10 months on 2026-11-30: infant or child.
+        let ids = band_of(&r, PartialDate::Year(2024), on(2026, 11, 30), None);
+        assert_eq!(ids, ["infant", "child"]);
+        // Born "2015": 10 y 11 mo to 11 y 10 mo: child only.
+        assert_eq!(band_of(&r, PartialDate::Year(2015), on(2026, 11, 30), None), ["child"]);
+    }
+
+    #[test]
+    fn a_birth_date_after_the_result_is_refused() {
+        let r = rules();
+        assert_eq!(choose(&r, full(2026, 12, 1), &on(2026, 11, 30), None).unwrap_err(), NoBand::BornAfterResult);
+    }
+}

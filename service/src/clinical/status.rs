@@ -803,3 +803,278 @@ pub fn unused_by_status(facts: &Facts) -> Vec<Unused> {
 pub fn show_calcium(rules: &RuleSet, mmol: f64) -> String {
     value_with_mg_dl(mmol, rules.analyte(Analyte::CalciumTotal).and_then(|r| r.molar_mass_g_per_mol))
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::clinical::facts::{Code, Gender, PatientFacts, Symptom};
+    use crate::clinical::time::{CivilDate, PartialDate, When};
+
+    const HOUR: i64 = 3600;
+
+    fn rules() -> RuleSet {
+        crate::rules::load::load(None).unwrap().rules
+    }
+
+    /// 2026-11-30T15:00:00Z.
+    fn now() -> i64 {
+        CivilDate::new(2026, 11, 30).unwrap().days_since_epoch() * 86_400 + 15 * HOUR
+    }
+
+    fn at(unix: i64) -> When {
+        let d = CivilDate::of_instant(unix, 0);
+        When { earliest: unix, latest: unix, local_date_earliest: d, local_date_latest: d }
+    }
+
+    fn src(id: &str) -> Source {
+        Source { resource_type: "Observation".into(), reference: Some(format!("Observation/{id}")), expression: format!("Bundle.entry[{id}]") }
+    }
+
+    fn m(analyte: Analyte, value: f64, unit: &str, reported: (f64, &str), hours_ago: i64, id: &str) -> Measurement {
+        Measurement {
+            analyte,
+            value,
+            unit: unit.into(),
+            reported_value: reported.0,
+            reported_unit: reported.1.into(),
+            when: at(now() - hours_ago * HOUR),
+            when_text: format!("{hours_ago} h ago"),
+            status: ResultStatus::Final,
+            code: Code { system: "http://loinc.org".into(), code: "x".into(), display: "x".into() },
+            ph_adjusted: false,
+            source: src(id),
+        }
+    }
+
+    fn ionized(v: f64, hours_ago: i64, id: &str) -> Measurement {
+        m(Analyte::CalciumIonized, v, "mmol/L", (v, "mmol/L"), hours_ago, id)
+    }
+    fn total_mg(mg_dl: f64, hours_ago: i64, id: &str) -> Measurement {
+        m(Analyte::CalciumTotal, mg_dl * 10.0 / 40.078, "mmol/L", (mg_dl, "mg/dL"), hours_ago, id)
+    }
+    fn total_mmol(v: f64, hours_ago: i64, id: &str) -> Measurement {
+        m(Analyte::CalciumTotal, v, "mmol/L", (v, "mmol/L"), hours_ago, id)
+    }
+    fn albumin_g_dl(g_dl: f64, hours_ago: i64, id: &str) -> Measurement {
+        m(Analyte::Albumin, g_dl * 10.0, "g/L", (g_dl, "g/dL"), hours_ago, id)
+    }
+    fn qtc(ms: f64, hours_ago: i64) -> Measurement {
+        m(Analyte::Qtc, ms, "ms", (ms, "ms"), hours_ago, "qtc")
+    }
+
+    fn facts(birth: Option<PartialDate>, measurements: Vec<Measurement>) -> Facts {
+        Facts {
+            patient: PatientFacts {
+                birth_date: birth,
+                gender: Gender::Female,
+                source: Source { resource_type: "Patient".into(), reference: Some("Patient/p".into()), expression: "Bundle.entry[0].resource".into() },
+            },
+            measurements,
+            symptoms: Vec::new(),
+            gestational_age_weeks: None,
+            now: now(),
+        }
+    }
+
+    fn child() -> Option<PartialDate> {
+        Some(PartialDate::Full(CivilDate::new(2019, 3, 4).unwrap()))
+    }
+
+    fn seizure(hours_ago: Option<i64>) -> SymptomFinding {
+        SymptomFinding {
+            symptom: Symptom::Seizure,
+            when: hours_ago.map(|h| at(now() - h * HOUR)),
+            when_text: hours_ago.map(|h| format!("{h} h ago")),
+            code: Code { system: "http://snomed.info/sct".into(), code: "91175000".into(), display: "Seizure".into() },
+            source: Source { resource_type: "Condition".into(), reference: Some("Condition/s".into()), expression: "Bundle.entry[9].resource".into() },
+        }
+    }
+
+    fn close(a: f64, b: f64, tol: f64) -> bool {
+        (a - b).abs() <= tol
+    }
+
+    #[test]
+    fn ionized_calcium_is_preferred_over_a_newer_total() {
+        let f = facts(child(), vec![ionized(0.95, 10, "ica"), total_mg(9.6, 1, "tca"), albumin_g_dl(4.0, 1, "alb")]);
+        let a = assess(&f, &rules());
+        let finding = a.finding.unwrap();
+        assert_eq!(finding.measure, Measure::Ionized);
+        assert_eq!(a.status, GuidanceStatus::Success);
+        assert!(a.derived.is_none());
+        assert_eq!(a.unused.len(), 2, "{:?}", a.unused);
+        assert!(a.unused.iter().all(|u| u.reason.contains("ionized calcium was available")));
+    }
+
+    #[test]
+    fn payne_conventional_worked_example() {
+        // Worked example in common practice (from memory, consistent with the
+        // published form Ca + 0.8 x (4.0 - albumin)): Ca 7.0 mg/dL with albumin
+        // 2.0 g/dL adjusts to 8.6 mg/dL.
+        let f = facts(child(), vec![total_mg(7.0, 1, "tca"), albumin_g_dl(2.0, 1, "alb")]);
+        let a = assess(&f, &rules());
+        let d = a.derived.unwrap();
+        assert!(close(d.value_mg_dl, 8.6, 1e-9), "{}", d.value_mg_dl);
+        assert!(close(d.value_mmol_l, 8.6 * 10.0 / 40.078, 1e-9));
+        assert!(d.arithmetic.contains("7.00 + 0.80 x (4.0 - 2.00) = 8.60 mg/dL"), "{}", d.arithmetic);
+        // Albumin 20 g/L is below 30 g/L: the estimate is unreliable, an ionized calcium is required.
+        assert_eq!(a.status, GuidanceStatus::DataRequired);
+        assert!(a.data_needs.iter().any(|n| n.analyte == Analyte::CalciumIonized));
+    }
+
+    #[test]
+    fn payne_published_slope_reproduces_the_1973_formula() {
+        // Payne 1973 (BMJ 4:643): adjusted Ca = Ca - albumin + 4.0 (mg/100 mL, g/100 mL).
+        // Ca 8.0 and albumin 2.0 give 10.0; a site choosing Payne's slope gets it.
+        let mut r = rules();
+        r.albumin_adjustment.conventional_slope_mg_dl_per_g_dl = r.albumin_adjustment.payne_original_slope_mg_dl_per_g_dl;
+        let f = facts(child(), vec![total_mg(8.0, 1, "tca"), albumin_g_dl(2.0, 1, "alb")]);
+        let d = assess(&f, &r).derived.unwrap();
+        assert!(close(d.value_mg_dl, 10.0, 1e-9), "{}", d.value_mg_dl);
+    }
+
+    #[test]
+    fn payne_si_worked_example() {
+        // SI form Ca + 0.02 x (40 - albumin g/L) (GPnotebook; NHS Tayside):
+        // Ca 2.00 mmol/L with albumin 30 g/L adjusts to 2.20 mmol/L.
+        let f = facts(child(), vec![total_mmol(2.00, 1, "tca"), m(Analyte::Albumin, 30.0, "g/L", (30.0, "g/L"), 1, "alb")]);
+        let a = assess(&f, &rules());
+        let d = a.derived.clone().unwrap();
+        assert!(close(d.value_mmol_l, 2.20, 1e-9), "{}", d.value_mmol_l);
+        assert_eq!(a.status, GuidanceStatus::DataRequested, "albumin 30 g/L is not below the 30 g/L limit");
+        // 2.20 is the lower limit of the child's adjusted interval: within it.
+        assert_eq!(a.finding.unwrap().classification, Classification::Normal);
+    }
+
+    #[test]
+    fn albumin_from_another_draw_is_not_used() {
+        let f = facts(child(), vec![total_mg(8.0, 1, "tca"), albumin_g_dl(3.0, 30, "alb")]);
+        let a = assess(&f, &rules());
+        assert_eq!(a.finding.as_ref().unwrap().measure, Measure::TotalUnadjusted);
+        assert!(a.derived.is_none());
+        assert_eq!(a.status, GuidanceStatus::DataRequired);
+        assert!(a.unused.iter().any(|u| u.source.reference.as_deref() == Some("Observation/alb") && u.reason.contains("same draw")));
+        assert!(a.data_needs.iter().any(|n| n.analyte == Analyte::Albumin));
+    }
+
+    #[test]
+    fn stale_results_are_not_used() {
+        let f = facts(child(), vec![ionized(0.80, 100, "old")]);
+        let a = assess(&f, &rules());
+        assert!(a.finding.is_none());
+        assert_eq!(a.status, GuidanceStatus::DataRequired);
+        assert!(a.unused[0].reason.contains("older than 72 h"));
+    }
+
+    #[test]
+    fn grades_follow_the_thresholds_for_a_child() {
+        let r = rules();
+        let cases = [
+            (0.90, Classification::Low, Some("severe"), Some(IssueSeverity::High)),
+            (0.91, Classification::Low, Some("mild"), Some(IssueSeverity::Moderate)),
+            (1.00, Classification::Low, Some("mild"), Some(IssueSeverity::Moderate)),
+            (1.05, Classification::Low, None, Some(IssueSeverity::Low)),
+            (1.11, Classification::Normal, None, None),
+            (1.30, Classification::Normal, None, None),
+            (1.31, Classification::High, None, None),
+        ];
+        for (v, class, grade, severity) in cases {
+            let a = assess(&facts(child(), vec![ionized(v, 1, "ica")]), &r);
+            let f = a.finding.unwrap();
+            assert_eq!(f.classification, class, "{v}");
+            assert_eq!(f.grade.as_ref().map(|g| g.grade.as_str()), grade, "{v}");
+            assert_eq!(f.severity, severity, "{v}");
+        }
+    }
+
+    #[test]
+    fn common_practice_total_calcium_range_is_normal_in_infancy() {
+        // Fact of the trade (common practice): total calcium about 9-11 mg/dL in children.
+        let infant = Some(PartialDate::Full(CivilDate::new(2025, 11, 30).unwrap()));
+        // Unadjusted total calcium is judged against the total interval (9.0-11.0 mg/dL).
+        for mg in [9.0, 10.0, 11.0] {
+            let a = assess(&facts(infant, vec![total_mg(mg, 1, "t")]), &rules());
+            assert_eq!(a.finding.unwrap().classification, Classification::Normal, "{mg} mg/dL");
+        }
+        let a = assess(&facts(infant, vec![total_mg(8.9, 1, "t")]), &rules());
+        assert_eq!(a.finding.unwrap().classification, Classification::Low, "unadjusted total below 9.0 mg/dL");
+        // With albumin 4.0 g/dL the adjusted value equals the total and is judged
+        // against the adjusted interval 2.20-2.70 mmol/L (8.82-10.82 mg/dL).
+        let a = assess(&facts(infant, vec![total_mg(8.9, 1, "t"), albumin_g_dl(4.0, 1, "a")]), &rules());
+        assert_eq!(a.finding.unwrap().classification, Classification::Normal);
+        let a = assess(&facts(infant, vec![total_mg(11.0, 1, "t"), albumin_g_dl(4.0, 1, "a")]), &rules());
+        assert_eq!(a.finding.unwrap().classification, Classification::High);
+    }
+
+    #[test]
+    fn symptoms_and_qtc_make_it_symptomatic() {
+        let r = rules();
+        let mut f = facts(child(), vec![ionized(1.05, 1, "ica")]);
+        f.symptoms.push(seizure(Some(2)));
+        let a = assess(&f, &r);
+        let finding = a.finding.unwrap();
+        assert!(finding.is_symptomatic());
+        assert_eq!(finding.severity, Some(IssueSeverity::High));
+        assert!(finding.evidence.iter().any(|s| s.resource_type == "Condition"));
+
+        // A seizure a week ago does not count.
+        let mut f = facts(child(), vec![ionized(1.05, 1, "ica")]);
+        f.symptoms.push(seizure(Some(24 * 7)));
+        let a = assess(&f, &r);
+        assert!(!a.finding.unwrap().is_symptomatic());
+        assert!(a.unused.iter().any(|u| u.reason.contains("seizure recorded more than 72 h")));
+
+        // Active condition with no onset recorded still counts.
+        let mut f = facts(child(), vec![ionized(1.05, 1, "ica")]);
+        f.symptoms.push(seizure(None));
+        assert!(assess(&f, &r).finding.unwrap().is_symptomatic());
+
+        // QTc above 440 ms counts; 440 does not.
+        let a = assess(&facts(child(), vec![ionized(1.05, 1, "ica"), qtc(452.0, 2)]), &r);
+        assert_eq!(a.finding.unwrap().severity, Some(IssueSeverity::High));
+        let a = assess(&facts(child(), vec![ionized(1.05, 1, "ica"), qtc(440.0, 2)]), &r);
+        let f = a.finding.unwrap();
+        assert!(!f.is_symptomatic());
+        assert_eq!(f.severity, Some(IssueSeverity::Low));
+    }
+
+    #[test]
+    fn missing_or_untrustworthy_birth_dates_stop_the_status() {
+        let a = assess(&facts(None, vec![ionized(0.8, 1, "ica")]), &rules());
+        assert!(a.finding.is_none());
+        assert!(a.needs_birth_date);
+        assert_eq!(a.status, GuidanceStatus::DataRequired);
+        let adult = Some(PartialDate::Full(CivilDate::new(2000, 1, 1).unwrap()));
+        let a = assess(&facts(adult, vec![ionized(0.8, 1, "ica")]), &rules());
+        assert_eq!(a.status, GuidanceStatus::Failure);
+        assert!(a.finding.is_none());
+    }
+
+    #[test]
+    fn uncertain_age_band_reports_the_most_severe_reading() {
+        // Born "2024": infant or child on 2026-11-30. Total 2.22 mmol/L with no
+        // albumin: low for an infant (< 2.245), normal for a child (>= 2.20).
+        let a = assess(&facts(Some(PartialDate::Year(2024)), vec![total_mmol(2.22, 1, "t")]), &rules());
+        let f = a.finding.unwrap();
+        assert_eq!(f.classification, Classification::Low);
+        assert_eq!(f.interval.band_id, "infant");
+        assert!(a.basis.iter().any(|b| b.contains("disagree")), "{:?}", a.basis);
+    }
+
+    #[test]
+    fn no_calcium_means_data_required_with_what_to_measure() {
+        let a = assess(&facts(child(), vec![albumin_g_dl(3.5, 1, "alb")]), &rules());
+        assert_eq!(a.status, GuidanceStatus::DataRequired);
+        let needed: Vec<Analyte> = a.data_needs.iter().map(|n| n.analyte).collect();
+        assert_eq!(needed, [Analyte::CalciumIonized, Analyte::CalciumTotal, Analyte::Albumin]);
+    }
+
+    #[test]
+    fn preliminary_results_carry_a_caution() {
+        let mut ica = ionized(0.85, 1, "ica");
+        ica.status = ResultStatus::Preliminary;
+        let a = assess(&facts(child(), vec![ica]), &rules());
+        assert!(a.finding.unwrap().preliminary);
+        assert!(a.cautions.iter().any(|c| c.contains("preliminary")));
+    }
+}

@@ -245,6 +245,20 @@ mod tests {
     }
 
     #[test]
+    fn ionized_intervals_are_about_half_of_total_in_every_band() {
+        // Fact of the trade (common practice): roughly half of total calcium is
+        // protein bound and 40-60% is ionized. A band whose ionized and total
+        // limits break that ratio has a unit or typing error.
+        let rules = load(None).unwrap().rules;
+        for band in &rules.bands {
+            for (ion, tot) in [(band.ionized.lower, band.total.lower), (band.ionized.upper, band.total.upper)] {
+                let ratio = ion / tot;
+                assert!((0.40..=0.60).contains(&ratio), "{}: ionized {ion} / total {tot} = {ratio:.2}", band.id);
+            }
+        }
+    }
+
+    #[test]
     fn grade_above_lower_limit_is_inconsistent() {
         let mut doc = Value::Object(serde_json::Map::new());
         for (name, text) in DEFAULT_FILES {
