@@ -1,1 +1,153 @@
-//! Placeholder; filled in by its owner.
+//! The HTTP surface: metadata, OperationDefinition, probes, routing, media
+//! types, request ids.
+
+#![allow(clippy::unwrap_used, clippy::expect_used, clippy::panic)]
+
+use serde_json::Value;
+
+use crate::helpers::{
+    FHIR_JSON, Lab, Scenario, assert_r4_valid, assert_r4_valid_except_fhir_version, content_type, spawn_app,
+};
+
+async fn fhir_body(response: reqwest::Response, expected_status: u16) -> Value {
+    let status = response.status().as_u16();
+    let ct = content_type(&response);
+    let text = response.text().await.expect("a body");
+    assert_eq!(status, expected_status, "body: {text}");
+    assert!(ct.starts_with(FHIR_JSON), "Content-Type was {ct:?}");
+    serde_json::from_str(&text).unwrap_or_else(|e| panic!("body is not JSON ({e}): {text}"))
+}
+
+#[tokio::test]
+async fn metadata_is_a_capability_statement_declaring_assess() {
+    let app = spawn_app().await;
+    let cs = fhir_body(app.get("/fhir/metadata").await, 200).await;
+
+    assert_eq!(cs["resourceType"], "CapabilityStatement");
+    assert_eq!(cs["fhirVersion"], "4.0.1");
+    assert_eq!(cs["software"]["version"], env!("CARGO_PKG_VERSION"));
+    let operations: Vec<&Value> = cs["rest"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .filter(|r| r["mode"] == "server")
+        .flat_map(|r| r["operation"].as_array().into_iter().flatten())
+        .collect();
+    let assess = operations.iter().find(|o| o["name"] == "assess").expect("an operation named assess");
+    let definition = assess["definition"].as_str().unwrap_or("");
+    assert!(definition.ends_with("/OperationDefinition/assess"), "definition {definition}");
+    assert_r4_valid_except_fhir_version(&cs);
+}
+
+#[tokio::test]
+async fn operation_definition_is_valid_r4() {
+    let app = spawn_app().await;
+    let od = fhir_body(app.get("/fhir/OperationDefinition/assess").await, 200).await;
+
+    assert_eq!(od["resourceType"], "OperationDefinition");
+    assert_eq!(od["code"], "assess");
+    assert_eq!(od["system"], true);
+    let names: Vec<(&str, &str)> = od["parameter"]
+        .as_array()
+        .into_iter()
+        .flatten()
+        .map(|p| (p["name"].as_str().unwrap_or(""), p["use"].as_str().unwrap_or("")))
+        .collect();
+    assert!(names.contains(&("bundle", "in")), "{names:?}");
+    assert!(names.contains(&("return", "out")), "{names:?}");
+    assert_r4_valid(&od);
+}
+
+#[tokio::test]
+async fn probes_answer_200() {
+    let app = spawn_app().await;
+    for path in ["/livez", "/readyz"] {
+        let response = app.get(path).await;
+        assert_eq!(response.status().as_u16(), 200, "{path}");
+    }
+}
+
+#[tokio::test]
+async fn an_unknown_path_is_a_404_operation_outcome() {
+    let app = spawn_app().await;
+    for path in ["/fhir/Patient/123", "/nothing-here", "/fhir/$asses"] {
+        let oo = fhir_body(app.get(path).await, 404).await;
+        assert_eq!(oo["resourceType"], "OperationOutcome", "{path}");
+        assert_eq!(oo["issue"][0]["code"], "not-found", "{path}: {oo}");
+        assert_r4_valid(&oo);
+    }
+}
+
+#[tokio::test]
+async fn get_on_assess_is_a_405_operation_outcome() {
+    let app = spawn_app().await;
+    let oo = fhir_body(app.get("/fhir/$assess").await, 405).await;
+    assert_eq!(oo["resourceType"], "OperationOutcome");
+    assert_eq!(oo["issue"][0]["severity"], "error", "{oo}");
+    assert_r4_valid(&oo);
+}
+
+/// RFC 9110 section 15.5.6: a 405 response MUST carry an Allow header listing
+/// the methods the resource supports.
+#[tokio::test]
+#[ignore = "bug: 405 from GET /fhir/$assess has no Allow header (RFC 9110 15.5.6 requires Allow: POST)"]
+async fn get_on_assess_names_the_allowed_method() {
+    let app = spawn_app().await;
+    let response = app.get("/fhir/$assess").await;
+    assert_eq!(response.status().as_u16(), 405);
+    let allow = response.headers().get(reqwest::header::ALLOW).and_then(|v| v.to_str().ok()).unwrap_or("").to_owned();
+    assert!(allow.split(',').any(|m| m.trim() == "POST"), "Allow: {allow:?}");
+}
+
+#[tokio::test]
+async fn a_sent_request_id_is_echoed() {
+    let app = spawn_app().await;
+    let response = app
+        .client
+        .get(format!("{}/livez", app.address))
+        .header("X-Request-Id", "larkspur-trace-0042")
+        .send()
+        .await
+        .expect("sent");
+    assert_eq!(response.status().as_u16(), 200);
+    assert_eq!(response.headers().get("x-request-id").and_then(|v| v.to_str().ok()), Some("larkspur-trace-0042"));
+}
+
+#[tokio::test]
+async fn a_request_id_is_generated_when_absent() {
+    let app = spawn_app().await;
+    let first = app.get("/livez").await;
+    let second = app.get("/fhir/metadata").await;
+    let id = |r: &reqwest::Response| r.headers().get("x-request-id").and_then(|v| v.to_str().ok()).map(str::to_owned);
+    let (a, b) = (id(&first).expect("an id on the first"), id(&second).expect("an id on the second"));
+    assert!(!a.is_empty() && !b.is_empty());
+    assert_ne!(a, b, "each request gets its own id");
+}
+
+#[tokio::test]
+async fn an_error_response_also_carries_the_request_id() {
+    let app = spawn_app().await;
+    let response = app
+        .client
+        .post(format!("{}/fhir/$assess", app.address))
+        .header("X-Request-Id", "err-77")
+        .header(reqwest::header::CONTENT_TYPE, FHIR_JSON)
+        .body("not json")
+        .send()
+        .await
+        .expect("sent");
+    assert_eq!(response.status().as_u16(), 400);
+    assert_eq!(response.headers().get("x-request-id").and_then(|v| v.to_str().ok()), Some("err-77"));
+}
+
+#[tokio::test]
+async fn json_and_fhir_json_with_charset_are_both_accepted() {
+    let app = spawn_app().await;
+    let body = Scenario::new().add(Lab::IonizedCa, "ica-1", 1.22, 2.0).bundle().to_string();
+    for ct in ["application/json", "application/fhir+json; charset=utf-8", "application/fhir+json"] {
+        let bundle = fhir_body(app.post_assess(body.clone(), ct).await, 200).await;
+        assert_eq!(bundle["resourceType"], "Bundle", "{ct}");
+        assert_eq!(bundle["type"], "collection", "{ct}");
+        assert_r4_valid(&bundle);
+    }
+}

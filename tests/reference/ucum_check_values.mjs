@@ -47,14 +47,17 @@ const BASE = {
   SubstanceRatio: 'mol/mol',
 };
 
-// Codes our lookup refuses on purpose, with the accepted code each resembles.
-const REFUSED = [
-  ['mg/dl', 'mg/dL'],
-  ['mEq/L', 'meq/L'],
-  ['MG/DL', 'mg/dL'],
-  ['mg%', 'mg/dL'],
-  ['µmol/L', 'umol/L'],
-  ['mmol', 'mmol/L'],
+// Other spellings a sender may use, with the table code each resembles and our
+// policy: 'accept' (the same UCUM unit: lower-case litre) or 'refuse'.
+const SPELLINGS = [
+  ['mg/dl', 'mg/dL', 'accept'],
+  ['mmol/l', 'mmol/L', 'accept'],
+  ['g/l', 'g/L', 'accept'],
+  ['mEq/L', 'meq/L', 'refuse'],
+  ['MG/DL', 'mg/dL', 'refuse'],
+  ['mg%', 'mg/dL', 'refuse'],
+  ['µmol/L', 'umol/L', 'refuse'],
+  ['mmol', 'mmol/L', 'refuse'],
 ];
 
 // Chemistry conversions: [substance key in molar-mass-check-values.json, from, to, charge].
@@ -147,9 +150,10 @@ function compute() {
   const baseUnits = {};
   for (const base of Object.values(BASE)) if (base !== null) baseUnits[base] = validate(base);
 
-  const refused = REFUSED.map(([code, resembles]) => ({
+  const spellings = SPELLINGS.map(([code, resembles, policy]) => ({
     code,
     resembles,
+    policy,
     validation: validate(code),
     in_base_units: inBaseUnits(code),
     conversion_of_1_to_resembled: convert(code, 1, resembles),
@@ -183,7 +187,7 @@ function compute() {
     units_source: 'service/src/clinical/units.rs (codes and dimensions only)',
     units,
     base_units: baseUnits,
-    refused,
+    spellings,
     chemistry,
   };
 }

@@ -228,7 +228,7 @@ impl Facts {
     pub fn of(&self, analyte: Analyte) -> Vec<&Measurement> {
         let mut found: Vec<&Measurement> =
             self.measurements.iter().filter(|m| m.analyte == analyte).collect();
-        found.sort_by(|a, b| b.when.latest.cmp(&a.when.latest));
+        found.sort_by_key(|m| std::cmp::Reverse(m.when.latest));
         found
     }
 }

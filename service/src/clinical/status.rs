@@ -539,16 +539,16 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
             ctx.cautions.push(rules.albumin_adjustment.caution.clone());
             status = GuidanceStatus::DataRequested;
             ctx.need(Analyte::CalciumIonized, "The albumin-adjusted calcium is an estimate; a measured ionized calcium is needed to confirm the status.");
-            if let Some(alb) = albumin {
-                if alb.value < rules.albumin_adjustment.unreliable_below_albumin_g_l {
-                    status = GuidanceStatus::DataRequired;
-                    ctx.cautions.push(format!(
-                        "Albumin {} g/L is below {} g/L, where the adjusted calcium is least reliable ({}). Measure an ionized calcium.",
-                        num(alb.value, 1),
-                        num(rules.albumin_adjustment.unreliable_below_albumin_g_l, 0),
-                        rules.albumin_adjustment.unreliable_source
-                    ));
-                }
+            if let Some(alb) = albumin
+                && alb.value < rules.albumin_adjustment.unreliable_below_albumin_g_l
+            {
+                status = GuidanceStatus::DataRequired;
+                ctx.cautions.push(format!(
+                    "Albumin {} g/L is below {} g/L, where the adjusted calcium is least reliable ({}). Measure an ionized calcium.",
+                    num(alb.value, 1),
+                    num(rules.albumin_adjustment.unreliable_below_albumin_g_l, 0),
+                    rules.albumin_adjustment.unreliable_source
+                ));
             }
         }
         Measure::TotalUnadjusted => {

@@ -4,8 +4,9 @@
 //! dimension and its factor to the dimension's base unit, as UCUM defines them
 //! (prefixes m = 1e-3, u = 1e-6, n = 1e-9, p = 1e-12, d = 1e-1; [lb_av] =
 //! 0.45359237 kg). It is a closed list on purpose (DEVELOPERS.md: units): a
-//! code outside it is refused, never guessed, and UCUM codes are
-//! case-sensitive, so `mg/dl` or `mEq/L` are not accepted. Converting between
+//! code outside it is refused, never guessed. UCUM codes are case-sensitive,
+//! so `mEq/L` and `MG/DL` are refused; UCUM defines the litre both as `L` and
+//! as `l`, so `mg/dl` is the same unit as `mg/dL` and is accepted. Converting between
 //! mass, substance and equivalents needs the analyte's molar mass and valence,
 //! which come from the rule data.
 
@@ -97,9 +98,19 @@ pub const UNITS: &[UnitDef] = &[
     unit("mmol/mol", D::SubstanceRatio, 1e-3),
 ];
 
-/// Look a UCUM code up in the accepted table.
+/// Look a UCUM code up in the accepted table. A lower-case litre in the
+/// denominator (`/l`, `/dl`, `/ml`) is UCUM's other symbol for the litre and
+/// finds the table entry written with `L`.
 pub fn lookup(code: &str) -> Option<&'static UnitDef> {
-    UNITS.iter().find(|u| u.code == code)
+    UNITS.iter().find(|u| u.code == code).or_else(|| {
+        let (num, den) = code.split_once('/')?;
+        let prefix = den.strip_suffix('l')?;
+        if !["", "d", "m", "u"].contains(&prefix) {
+            return None;
+        }
+        let spelled = format!("{num}/{prefix}L");
+        UNITS.iter().find(|u| u.code == spelled)
+    })
 }
 
 /// Why a value could not be converted.
@@ -269,10 +280,18 @@ mod tests {
     #[test]
     fn refuses_what_is_not_ucum_or_not_convertible() {
         let ca = rule("mmol/L", Some(40.078), Some(2.0));
-        for bad in ["mg/dl", "mEq/L", "MG/DL", "mg%", "", "µmol/L", "mmol"] {
+        for bad in ["mEq/L", "MG/DL", "mg%", "", "µmol/L", "mmol", "mg/Dl", "mg/kl", "kg/l"] {
             assert!(to_canonical(1.0, bad, &ca).is_err(), "{bad} accepted");
         }
         assert!(matches!(to_canonical(1.0, "kg", &ca), Err(UnitError::Incompatible { .. })));
+    }
+
+    #[test]
+    fn lower_case_litre_is_the_same_unit() {
+        let ca = rule("mmol/L", Some(40.078), Some(2.0));
+        assert_eq!(to_canonical(10.0, "mg/dl", &ca), to_canonical(10.0, "mg/dL", &ca));
+        assert_eq!(lookup("mmol/l").map(|u| u.code), Some("mmol/L"));
+        assert_eq!(lookup("U/l").map(|u| u.code), Some("U/L"));
     }
 
     #[test]

@@ -95,12 +95,12 @@ pub fn parse_date_time(s: &str) -> Result<DateTime, DateError> {
         }
         (c, sign * i32::try_from(oh * 60 + om).map_err(|_| form())?)
     };
-    let (hms, fraction) = match clock.split_once('.') {
-        Some((h, f)) if !f.is_empty() && f.bytes().all(|b| b.is_ascii_digit()) => (h, Some(f)),
+    // Fractions of a second are checked for form and dropped: no rule needs them.
+    let hms = match clock.split_once('.') {
+        Some((h, f)) if !f.is_empty() && f.bytes().all(|b| b.is_ascii_digit()) => h,
         Some(_) => return Err(form()),
-        None => (clock, None),
+        None => clock,
     };
-    let _ = fraction;
     let mut p = hms.split(':');
     let (Some(h), Some(m), Some(sec), None) = (p.next(), p.next(), p.next(), p.next()) else {
         return Err(form());

@@ -480,7 +480,7 @@ impl<'a> Reader<'a> {
         if !self.subject_ok(e, index, patient) {
             return;
         }
-        let Some((when, when_text, when_path)) = self.effective(e) else { return };
+        let Some((when, when_text)) = self.effective(e) else { return };
         if let Some(s) = symptom {
             if r.get("valueBoolean") == Some(&Value::Bool(false)) {
                 self.ignore(e, format!("{} recorded as absent", s.symptom.label()));
@@ -495,11 +495,10 @@ impl<'a> Reader<'a> {
             }
             return;
         }
-        let _ = when_path;
-        if let Some(code) = lab {
-            if let Some(m) = self.quantity(e, "", r, code, status, when, &when_text) {
-                measurements.push(m);
-            }
+        if let Some(code) = lab
+            && let Some(m) = self.quantity(e, "", r, code, status, when, &when_text)
+        {
+            measurements.push(m);
         }
         for (k, code) in component_codes {
             let Some(comp) = components.get(k) else { continue };
@@ -592,6 +591,8 @@ impl<'a> Reader<'a> {
             );
             return None;
         }
+        // The table's spelling (e.g. `mg/dl` is recorded as `mg/dL`, the same UCUM unit).
+        let unit = units::lookup(unit).map_or(unit, |u| u.code);
         Some(Measurement {
             analyte: code.analyte,
             value: canonical,
@@ -607,7 +608,7 @@ impl<'a> Reader<'a> {
         })
     }
 
-    fn effective(&mut self, e: &Entry<'_>) -> Option<(When, String, &'static str)> {
+    fn effective(&mut self, e: &Entry<'_>) -> Option<(When, String)> {
         let r = e.resource;
         let (text, path, span) = if let Some(t) = str_at(r, "effectiveDateTime") {
             (t.to_owned(), ".effectiveDateTime", datetime::parse_date_time(t).map(|d| (d.when, d.date_only)))
@@ -644,18 +645,18 @@ impl<'a> Reader<'a> {
                 return None;
             }
         };
-        if let Some(d) = date_only {
-            if !d.is_full() {
-                self.aside(e, path, format!("effective time '{text}' is too imprecise ({})", d.precision_label()));
-                return None;
-            }
+        if let Some(d) = date_only
+            && !d.is_full()
+        {
+            self.aside(e, path, format!("effective time '{text}' is too imprecise ({})", d.precision_label()));
+            return None;
         }
         let skew = (self.rules.windows.clock_skew_minutes * 60.0).round() as i64;
         if when.earliest > self.now + skew {
             self.aside(e, path, format!("effective time {text} is in the future (evaluation time {})", datetime::format_instant(self.now)));
             return None;
         }
-        Some((when, text, path))
+        Some((when, text))
     }
 
     fn condition(&mut self, e: &Entry<'_>, index: &Index<'_>, patient: &Entry<'_>, symptoms: &mut Vec<SymptomFinding>) {
@@ -794,12 +795,14 @@ impl<'e> Index<'e> {
         let mut parts = reference.split('/');
         let (Some(t), Some(id)) = (parts.next(), parts.next()) else { return None };
         // A relative reference resolves against the referencing entry's base.
-        if let Some(base) = from_full_url.and_then(|u| u.rfind('/').and_then(|k| u.get(..k))).and_then(|b| b.rfind('/').and_then(|k| b.get(..k))) {
-            if base.contains("://") {
-                if let Some(&i) = self.by_url.get(format!("{base}/{t}/{id}").as_str()) {
-                    return Some(i);
-                }
-            }
+        let base = from_full_url
+            .and_then(|u| u.rfind('/').and_then(|k| u.get(..k)))
+            .and_then(|b| b.rfind('/').and_then(|k| b.get(..k)));
+        if let Some(base) = base
+            && base.contains("://")
+            && let Some(&i) = self.by_url.get(format!("{base}/{t}/{id}").as_str())
+        {
+            return Some(i);
         }
         self.by_type_id.get(&(t, id)).copied()
     }
