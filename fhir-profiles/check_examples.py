@@ -40,6 +40,11 @@ PROFILES = {
     "Patient": "patient",
     "Observation": "observation",
     "Condition": "condition",
+    "MedicationRequest": "medicationrequest",
+    "MedicationStatement": "medicationstatement",
+    "MedicationAdministration": "medicationadministration",
+    "Medication": "medication",
+    "Procedure": "procedure",
 }
 
 
@@ -161,6 +166,48 @@ def _cond(**kw):
     return c
 
 
+PAT_REF = {"reference": "Patient/p1"}
+FUROSEMIDE = {"coding": [{"system": "http://www.whocc.no/atc", "code": "C03CA01", "display": "furosemide"}]}
+
+
+def _mreq(**kw):
+    m = {"resourceType": "MedicationRequest", "status": "active", "intent": "order",
+         "medicationCodeableConcept": FUROSEMIDE, "subject": PAT_REF}
+    m.update(kw)
+    return m
+
+
+def _mstmt(**kw):
+    m = {"resourceType": "MedicationStatement", "status": "active",
+         "medicationCodeableConcept": FUROSEMIDE, "subject": PAT_REF}
+    m.update(kw)
+    return m
+
+
+def _madmin(**kw):
+    m = {"resourceType": "MedicationAdministration", "status": "completed",
+         "medicationCodeableConcept": FUROSEMIDE, "subject": PAT_REF,
+         "effectiveDateTime": "2026-11-29T20:00:00-05:00"}
+    m.update(kw)
+    return m
+
+
+def _med(**kw):
+    m = {"resourceType": "Medication"}
+    m.update(kw)
+    return m
+
+
+def _proc(**kw):
+    p = {"resourceType": "Procedure", "status": "completed", "code": {"text": "Thyroidectomy"}, "subject": PAT_REF}
+    p.update(kw)
+    return p
+
+
+def _without(res, *keys):
+    return {k: v for k, v in res.items() if k not in keys}
+
+
 def _bundle(btype, entry, **kw):
     b = {"resourceType": "Bundle", "type": btype, "entry": entry}
     b.update(kw)
@@ -199,6 +246,51 @@ EDGE_CASES = [
     ("Parameters with value and with part", {"resourceType": "Parameters", "parameter": [
         {"name": "now", "valueDateTime": "2026-11-30T08:15:00-05:00"},
         {"name": "grp", "part": [{"name": "bundle", "resource": _bundle("collection", [PAT_ENTRY])}]}]}, True, True),
+    # medications and procedures: must pass
+    ("MedicationRequest minimal", _mreq(), True, True),
+    ("MedicationRequest text-only medication", _mreq(medicationCodeableConcept={"text": "furosemide oral solution"}), True, True),
+    ("MedicationRequest -> contained Medication", dict(_without(_mreq(), "medicationCodeableConcept"),
+        contained=[_med(id="med1", code=FUROSEMIDE, ingredient=[{"itemCodeableConcept": FUROSEMIDE, "isActive": True,
+            "strength": {"numerator": {"value": 10, "unit": "mg", "system": UCUM, "code": "mg"},
+                         "denominator": {"value": 1, "unit": "mL", "system": UCUM, "code": "mL"}}}])],
+        medicationReference={"reference": "#med1"}), True, True),
+    ("MedicationRequest status/intent only as _status/_intent", dict(_without(_mreq(), "status", "intent"),
+        _status={"extension": [{"url": "http://example.org/x", "valueString": "?"}]},
+        _intent={"extension": [{"url": "http://example.org/x", "valueString": "?"}]}), True, True),
+    ("MedicationRequest year-only authoredOn", _mreq(authoredOn="2026"), True, True),
+    ("MedicationRequest doNotPerform, reportedBoolean", _mreq(doNotPerform=True, reportedBoolean=True), True, True),
+    ("MedicationRequest unusual dosageInstruction", _mreq(dosageInstruction=[
+        {"sequence": 1, "text": "1 mg/kg IV twice daily", "timing": {"code": {"text": "BID"}, "repeat": {"frequency": 2, "period": 1, "periodUnit": "d"}},
+         "asNeededCodeableConcept": {"text": "oedema"},
+         "doseAndRate": [{"doseRange": {"low": {"value": 10, "unit": "mg", "system": UCUM, "code": "mg"}},
+                          "rateQuantity": {"value": 5, "unit": "mL/h", "system": UCUM, "code": "mL/h"}}],
+         "maxDosePerPeriod": {"numerator": {"value": 40, "unit": "mg"}, "denominator": {"value": 1, "unit": "d"}}},
+        {"text": "then review"}]), True, True),
+    ("MedicationRequest unread elements pass through", _mreq(priority="stat", note=[{"text": "x"}],
+        dispenseRequest={"numberOfRepeatsAllowed": 0}, substitution={"allowedBoolean": False}), True, True),
+    ("MedicationStatement not-taken, no effective[x]", _mstmt(status="not-taken", statusReason=[{"text": "refused"}]), True, True),
+    ("MedicationStatement open effectivePeriod", _mstmt(effectivePeriod={"start": "2026-11-20"},
+        dateAsserted="2026-11-30T08:00:00.5+00:00"), True, True),
+    ("MedicationStatement medicationReference", dict(_without(_mstmt(), "medicationCodeableConcept"),
+        medicationReference={"reference": "Medication/m1"}), True, True),
+    ("MedicationAdministration only _effectiveDateTime", dict(_without(_madmin(), "effectiveDateTime"),
+        _effectiveDateTime={"extension": [{"url": "http://hl7.org/fhir/StructureDefinition/data-absent-reason", "valueCode": "unknown"}]}), True, True),
+    ("MedicationAdministration effectivePeriod, rate only", dict(_without(_madmin(), "effectiveDateTime"),
+        effectivePeriod={"start": "2026-11-29T20:00:00-05:00", "end": "2026-11-29T20:30:00-05:00"},
+        dosage={"rateRatio": {"numerator": {"value": 2, "unit": "mg"}, "denominator": {"value": 1, "unit": "h"}}}), True, True),
+    ("Medication with only resourceType", _med(), True, True),
+    ("Medication ingredient by reference", _med(status="active", ingredient=[{"itemReference": {"reference": "Substance/s1"}}]), True, True),
+    ("Procedure performedString", _proc(performedString="in infancy"), True, True),
+    ("Procedure performedAge in UCUM years", _proc(performedAge={"value": 3, "unit": "years", "system": UCUM, "code": "a"}), True, True),
+    ("Procedure performedAge 0 (age-1 XPath >= 0)", _proc(performedAge={"value": 0, "unit": "days", "system": UCUM, "code": "d"}), True, True),
+    ("Procedure performedAge unit text only", _proc(performedAge={"unit": "infancy"}), True, True),
+    ("Procedure performedRange low only", _proc(performedRange={"low": {"value": 1, "unit": "a", "system": UCUM, "code": "a"}}), True, True),
+    ("Procedure not-done, no code, no performed[x]", dict(_without(_proc(), "code"), status="not-done",
+        statusReason={"text": "cancelled"}), True, True),
+    ("collection Bundle with medication entries", _bundle("collection", [PAT_ENTRY,
+        {"fullUrl": "urn:uuid:5e0b7c52-8a53-4d0c-9f0e-3f3c1f6c2a01", "resource": _mreq()},
+        {"fullUrl": "urn:uuid:5e0b7c52-8a53-4d0c-9f0e-3f3c1f6c2a02", "resource": _madmin()},
+        {"fullUrl": "urn:uuid:5e0b7c52-8a53-4d0c-9f0e-3f3c1f6c2a03", "resource": _proc()}]), True, True),
     # must fail
     ("status not an R4 code", _obs(status="done"), False, False),
     ("no status at all", {"resourceType": "Observation", "code": {"text": "x"}}, False, True),
@@ -230,6 +322,52 @@ EDGE_CASES = [
     ("parameter with value and resource (inv-1)", {"resourceType": "Parameters", "parameter": [
         {"name": "bundle", "valueString": "x", "resource": _bundle("collection", [PAT_ENTRY])}]}, False, True),
     ("parameter without name", {"resourceType": "Parameters", "parameter": [{"valueString": "x"}]}, False, True),
+    # medications and procedures: must fail
+    ("MedicationRequest status not an R4 code", _mreq(status="ordered"), False, True),
+    ("MedicationRequest intent not an R4 code", _mreq(intent="prescription"), False, True),
+    ("MedicationRequest without intent", _without(_mreq(), "intent"), False, True),
+    ("MedicationRequest without medication[x]", _without(_mreq(), "medicationCodeableConcept"), False, True),
+    ("MedicationRequest two medication[x]", _mreq(medicationReference={"reference": "Medication/m1"}), False, True),
+    ("MedicationRequest without subject", _without(_mreq(), "subject"), False, False),
+    ("MedicationRequest authoredOn without time zone", _mreq(authoredOn="2026-11-25T09:00:00"), False, False),
+    ("MedicationRequest two reported[x]", _mreq(reportedBoolean=True, reportedReference={"reference": "Patient/p1"}), False, True),
+    ("MedicationRequest modifierExtension without url", _mreq(modifierExtension=[{"valueBoolean": True}]), False, True),
+    ("dose with comparator (sqty-1)", _mreq(dosageInstruction=[{"doseAndRate": [
+        {"doseQuantity": {"value": 1, "comparator": "<", "unit": "mg"}}]}]), False, True),
+    ("doseAndRate with two dose[x]", _mreq(dosageInstruction=[{"doseAndRate": [
+        {"doseQuantity": {"value": 1, "unit": "mg"}, "doseRange": {"low": {"value": 1, "unit": "mg"}}}]}]), False, True),
+    ("Dosage with two asNeeded[x]", _mreq(dosageInstruction=[{"asNeededBoolean": True,
+        "asNeededCodeableConcept": {"text": "pain"}}]), False, True),
+    ("dosageInstruction not an array", _mreq(dosageInstruction={"text": "bd"}), False, False),
+    ("MedicationStatement status not an R4 code", _mstmt(status="taking"), False, True),
+    ("MedicationStatement two effective[x]", _mstmt(effectiveDateTime="2026-11-20",
+        effectivePeriod={"start": "2026-11-20"}), False, True),
+    ("MedicationStatement effectiveDateTime without seconds", _mstmt(effectiveDateTime="2026-11-20T08:00-05:00"), False, False),
+    ("MedicationStatement dateAsserted without time zone", _mstmt(dateAsserted="2026-11-30T08:00:00"), False, False),
+    ("MedicationAdministration without effective[x]", _without(_madmin(), "effectiveDateTime"), False, True),
+    ("MedicationAdministration two effective[x]", _madmin(effectivePeriod={"start": "2026-11-29"}), False, True),
+    ("MedicationAdministration status not an R4 code", _madmin(status="given"), False, True),
+    ("MedicationAdministration dosage without dose or rate (mad-1)", _madmin(dosage={"text": "slowly"}), False, True),
+    ("Ratio numerator without denominator (rat-1)", _madmin(dosage={"rateRatio": {"numerator": {"value": 2, "unit": "mg"}}}), False, True),
+    ("Medication status not an R4 code", _med(status="available"), False, True),
+    ("Medication ingredient without item[x]", _med(ingredient=[{"isActive": True}]), False, True),
+    ("Medication ingredient with two item[x]", _med(ingredient=[{"itemCodeableConcept": FUROSEMIDE,
+        "itemReference": {"reference": "Substance/s1"}}]), False, True),
+    ("Procedure status not an R4 code", _proc(status="done"), False, True),
+    ("Procedure without subject", _without(_proc(), "subject"), False, False),
+    ("Procedure two performed[x]", _proc(performedString="last year", performedDateTime="2025"), False, True),
+    ("Procedure performedAge value without code (age-1)", _proc(performedAge={"value": 3, "unit": "years"}), False, True),
+    ("Procedure performedAge not UCUM (age-1)", _proc(performedAge={"value": 3, "system": "http://example.org/units", "code": "yr"}), False, True),
+    ("Procedure performedAge negative (age-1)", _proc(performedAge={"value": -1, "system": UCUM, "code": "a"}), False, True),
+    ("Procedure performedDateTime with impossible hour", _proc(performedDateTime="2026-11-30T25:00:00Z"), False, False),
+    ("nested: Bundle entry MedicationRequest without intent", _bundle("collection", [PAT_ENTRY,
+        {"fullUrl": "urn:uuid:5e0b7c52-8a53-4d0c-9f0e-3f3c1f6c2a04", "resource": _without(_mreq(), "intent")}]), False, True),
+    ("nested: contained Medication with bad ingredient", dict(_without(_mreq(), "medicationCodeableConcept"),
+        contained=[_med(id="med1", ingredient=[{"isActive": True}])], medicationReference={"reference": "#med1"}), False, True),
+    ("nested: Parameters -> Bundle -> Procedure, two performed[x]", {"resourceType": "Parameters", "parameter": [
+        {"name": "bundle", "resource": _bundle("collection", [PAT_ENTRY,
+            {"fullUrl": "urn:uuid:5e0b7c52-8a53-4d0c-9f0e-3f3c1f6c2a05",
+             "resource": _proc(performedString="x", performedPeriod={"start": "2020"})}])}]}, False, True),
 ]
 
 

@@ -72,6 +72,12 @@ PRIMITIVES = {
         "type": "number",
         "description": "FHIR decimal: a JSON number.",
     },
+    "integer": {
+        "type": "integer",
+        "minimum": -2147483648,
+        "maximum": 2147483647,
+        "description": "FHIR integer: a whole number from -2^31 to 2^31-1.",
+    },
     "unsignedInt": {
         "type": "integer",
         "minimum": 0,
@@ -120,6 +126,21 @@ def array_of(name, description):
         "minItems": 1,
         "items": {"$ref": "#/$defs/" + name},
         "description": description,
+    }
+
+
+def at_most_one(keys, what):
+    """Schema that rejects an object carrying two or more of the given keys
+    (a choice element [x] may appear at most once)."""
+    return {
+        "description": "At most one form of %s may be present." % what,
+        "not": {
+            "anyOf": [
+                {"required": [a, b]}
+                for i, a in enumerate(keys)
+                for b in keys[i + 1:]
+            ]
+        },
     }
 
 
@@ -260,6 +281,110 @@ DATATYPES = {
         },
         "additionalProperties": True,
     },
+    "SimpleQuantity": {
+        "$ref": "#/$defs/Quantity",
+        "title": "SimpleQuantity",
+        "description": "A Quantity without a comparator (sqty-1), as used for doses and range limits.",
+        "not": {"required": ["comparator"]},
+    },
+    "Age": {
+        "type": "object",
+        "title": "Age",
+        "description": "A Quantity giving a duration of life. age-1: a value needs a code; a system, if present, is UCUM; "
+                       "the value is not negative (the R4 FHIRPath says > 0, the R4 XPath says >= 0; the looser form is used).",
+        "properties": {
+            "value": {"$ref": "#/$defs/decimal", "minimum": 0, "description": "Numerical value, with implicit precision; not negative."},
+            "comparator": {
+                "enum": ["<", "<=", ">=", ">"],
+                "description": "How to understand the value (QuantityComparator, required binding).",
+            },
+            "unit": ref("string", "Unit as displayed to people."),
+            "system": {"$ref": "#/$defs/uri", "const": "http://unitsofmeasure.org", "description": "If present, UCUM."},
+            "code": ref("code", "UCUM time unit, e.g. a, mo, wk, d."),
+        },
+        "dependentRequired": {"code": ["system"], "value": ["code"]},
+        "additionalProperties": True,
+    },
+    "Range": {
+        "type": "object",
+        "title": "Range",
+        "description": "A range of quantities. rng-2 (low <= high) cannot be expressed in JSON Schema and is not checked.",
+        "properties": {
+            "low": ref("SimpleQuantity", "Low limit, inclusive."),
+            "high": ref("SimpleQuantity", "High limit, inclusive."),
+        },
+        "additionalProperties": True,
+    },
+    "Ratio": {
+        "type": "object",
+        "title": "Ratio",
+        "description": "A ratio of two quantities. rat-1: numerator and denominator are both present or both absent.",
+        "properties": {
+            "numerator": ref("Quantity", "Numerator value."),
+            "denominator": ref("Quantity", "Denominator value."),
+        },
+        "dependentRequired": {"numerator": ["denominator"], "denominator": ["numerator"]},
+        "additionalProperties": True,
+    },
+    "Timing": {
+        "type": "object",
+        "title": "Timing",
+        "description": "When an event is to occur; read loosely (only event times are typed).",
+        "properties": {
+            "event": {
+                "type": "array",
+                "minItems": 1,
+                "items": {"anyOf": [{"$ref": "#/$defs/dateTime"}, {"type": "null"}]},
+                "description": "Times the event occurs; null entries are allowed where _event carries extensions.",
+            },
+            "repeat": {"type": "object", "description": "Repetition rules (not read)."},
+            "code": ref("CodeableConcept", "Code for a common timing, e.g. BID."),
+        },
+        "additionalProperties": True,
+    },
+    "Dosage": {
+        "type": "object",
+        "title": "Dosage",
+        "description": "How a medication is or was to be taken; read loosely (text, route, timing, dose and rate).",
+        "properties": {
+            "modifierExtension": array_of("Extension", "Extensions that change the meaning of the dosage."),
+            "sequence": ref("integer", "Order of this instruction among several."),
+            "text": ref("string", "Free-text dosage instructions."),
+            "timing": ref("Timing", "When the medication should be given."),
+            "asNeededBoolean": ref("boolean", "Take as needed."),
+            "asNeededCodeableConcept": ref("CodeableConcept", "Take as needed, for the given reason."),
+            "route": ref("CodeableConcept", "How the drug enters the body."),
+            "doseAndRate": {
+                "type": "array",
+                "minItems": 1,
+                "items": {"$ref": "#/$defs/DosageDoseAndRate"},
+                "description": "Amount of medication per dose and/or per unit of time.",
+            },
+            "maxDosePerPeriod": ref("Ratio", "Upper limit on medication per unit of time."),
+            "maxDosePerAdministration": ref("SimpleQuantity", "Upper limit on medication per administration."),
+            "maxDosePerLifetime": ref("SimpleQuantity", "Upper limit on medication per lifetime of the patient."),
+        },
+        "allOf": [at_most_one(["asNeededBoolean", "asNeededCodeableConcept"], "asNeeded[x]")],
+        "additionalProperties": True,
+    },
+    "DosageDoseAndRate": {
+        "type": "object",
+        "title": "Dosage.doseAndRate",
+        "description": "One dose and/or rate.",
+        "properties": {
+            "type": ref("CodeableConcept", "Kind of dose or rate, e.g. calculated or ordered."),
+            "doseRange": ref("Range", "Amount per dose, as a range."),
+            "doseQuantity": ref("SimpleQuantity", "Amount per dose."),
+            "rateRatio": ref("Ratio", "Amount per unit of time, as a ratio."),
+            "rateRange": ref("Range", "Amount per unit of time, as a range."),
+            "rateQuantity": ref("SimpleQuantity", "Amount per unit of time."),
+        },
+        "allOf": [
+            at_most_one(["doseRange", "doseQuantity"], "dose[x]"),
+            at_most_one(["rateRatio", "rateRange", "rateQuantity"], "rate[x]"),
+        ],
+        "additionalProperties": True,
+    },
 }
 
 # Datatypes each schema needs (dependencies are closed over automatically).
@@ -274,6 +399,14 @@ DEPENDS = {
     "Quantity": ["decimal", "string", "uri", "code"],
     "HumanName": ["string", "Period"],
     "Meta": ["id", "instant", "uri", "canonical", "Coding"],
+    "SimpleQuantity": ["Quantity"],
+    "Age": ["decimal", "string", "uri", "code"],
+    "Range": ["SimpleQuantity"],
+    "Ratio": ["Quantity"],
+    "Timing": ["dateTime", "CodeableConcept"],
+    "Dosage": ["Extension", "integer", "string", "Timing", "boolean", "CodeableConcept",
+               "DosageDoseAndRate", "Ratio", "SimpleQuantity"],
+    "DosageDoseAndRate": ["CodeableConcept", "Range", "SimpleQuantity", "Ratio"],
 }
 
 
@@ -293,21 +426,6 @@ def defs_for(names):
 
 def choice_keys(prefix, types):
     return [prefix + t for t in types]
-
-
-def at_most_one(keys, what):
-    """Schema that rejects an object carrying two or more of the given keys
-    (a choice element [x] may appear at most once)."""
-    return {
-        "description": "At most one form of %s may be present." % what,
-        "not": {
-            "anyOf": [
-                {"required": [a, b]}
-                for i, a in enumerate(keys)
-                for b in keys[i + 1:]
-            ]
-        },
-    }
 
 
 def present_any(keys):
@@ -545,6 +663,232 @@ def condition():
 
 
 # ---------------------------------------------------------------------------
+# Medications: MedicationRequest, MedicationStatement, MedicationAdministration,
+# Medication
+# ---------------------------------------------------------------------------
+
+MEDICATION_KEYS = choice_keys("medication", ["CodeableConcept", "Reference"])
+
+
+def medication_props():
+    return {
+        "medicationCodeableConcept": ref("CodeableConcept", "The medication as a code, e.g. WHO ATC or RxNorm, and/or text."),
+        "medicationReference": ref("Reference", "The medication as a reference to a Medication resource (often #contained)."),
+    }
+
+
+def exactly_one(keys, what):
+    """A 1..1 choice element of complex types: one form present, and only one."""
+    return {
+        "description": "%s is mandatory (1..1): exactly one form must be present." % what,
+        "allOf": [present_any(keys), at_most_one(keys, what)],
+    }
+
+
+def medication_request():
+    props = resource_common("MedicationRequest")
+    props.update({
+        "status": {
+            "enum": ["active", "on-hold", "cancelled", "completed", "entered-in-error", "stopped", "draft", "unknown"],
+            "description": "State of the order (medicationrequest-status, required binding).",
+        },
+        "_status": ref("Element", "Extensions on status."),
+        "statusReason": ref("CodeableConcept", "Reason for the current status."),
+        "intent": {
+            "enum": ["proposal", "plan", "order", "original-order", "reflex-order", "filler-order",
+                     "instance-order", "option"],
+            "description": "Whether this is a proposal, plan or order (medicationrequest-intent, required binding).",
+        },
+        "_intent": ref("Element", "Extensions on intent."),
+        "category": array_of("CodeableConcept", "Kind of medication order, e.g. inpatient or outpatient."),
+        "doNotPerform": ref("boolean", "True if the request is that the medication NOT be given (a modifier)."),
+        "reportedBoolean": ref("boolean", "Reported rather than primary record."),
+        "reportedReference": ref("Reference", "Who reported the request."),
+        **medication_props(),
+        "subject": ref("Reference", "The patient the medication is for."),
+        "authoredOn": ref("dateTime", "When the request was first written."),
+        "_authoredOn": ref("Element", "Extensions on authoredOn."),
+        "dosageInstruction": array_of("Dosage", "How the medication is to be used."),
+    })
+    all_of = [
+        required_primitive("status"),
+        required_primitive("intent"),
+        exactly_one(MEDICATION_KEYS, "medication[x]"),
+        at_most_one(choice_keys("reported", ["Boolean", "Reference"]), "reported[x]"),
+    ]
+    return document(
+        "medicationrequest", "calcium-cds MedicationRequest input profile",
+        "FHIR R4 MedicationRequest as read by the cause assessment (drugs that lower calcium or magnesium, or treat "
+        "hypocalcemia). All other R4 elements are allowed.",
+        props, ["resourceType", "subject"], all_of)
+
+
+def medication_statement():
+    props = resource_common("MedicationStatement")
+    props.update({
+        "status": {
+            "enum": ["active", "completed", "entered-in-error", "intended", "stopped", "on-hold", "unknown", "not-taken"],
+            "description": "Whether the medication is being taken (medication-statement-status, required binding; not-taken is a modifier).",
+        },
+        "_status": ref("Element", "Extensions on status."),
+        "statusReason": array_of("CodeableConcept", "Reason for the current status."),
+        "category": ref("CodeableConcept", "Kind of use, e.g. inpatient, outpatient, community."),
+        **medication_props(),
+        "subject": ref("Reference", "The patient taking the medication."),
+        "effectiveDateTime": ref("dateTime", "When the medication was, is or will be taken."),
+        "_effectiveDateTime": ref("Element", "Extensions on effectiveDateTime."),
+        "effectivePeriod": ref("Period", "Period over which the medication was, is or will be taken."),
+        "dateAsserted": ref("dateTime", "When the statement was asserted."),
+        "_dateAsserted": ref("Element", "Extensions on dateAsserted."),
+        "dosage": array_of("Dosage", "How the medication is or was taken."),
+    })
+    all_of = [
+        required_primitive("status"),
+        exactly_one(MEDICATION_KEYS, "medication[x]"),
+        at_most_one(choice_keys("effective", ["DateTime", "Period"]), "effective[x]"),
+    ]
+    return document(
+        "medicationstatement", "calcium-cds MedicationStatement input profile",
+        "FHIR R4 MedicationStatement as read by the cause assessment (drugs the patient is or was taking). "
+        "All other R4 elements are allowed.",
+        props, ["resourceType", "subject"], all_of)
+
+
+def medication_administration():
+    props = resource_common("MedicationAdministration")
+    effective_keys = choice_keys("effective", ["DateTime", "Period"])
+    props.update({
+        "status": {
+            "enum": ["in-progress", "not-done", "on-hold", "completed", "entered-in-error", "stopped", "unknown"],
+            "description": "State of the administration (medication-admin-status, required binding; not-done is a modifier).",
+        },
+        "_status": ref("Element", "Extensions on status."),
+        "statusReason": array_of("CodeableConcept", "Reason the administration was not performed."),
+        "category": ref("CodeableConcept", "Kind of administration, e.g. inpatient or outpatient."),
+        **medication_props(),
+        "subject": ref("Reference", "The patient who received the medication."),
+        "effectiveDateTime": ref("dateTime", "When the medication was given."),
+        "_effectiveDateTime": ref("Element", "Extensions on effectiveDateTime."),
+        "effectivePeriod": ref("Period", "Period over which the medication was given, e.g. an infusion."),
+        "request": ref("Reference", "The MedicationRequest this administration fulfils."),
+        "dosage": ref("MedicationAdministrationDosage", "Details of how the medication was given."),
+    })
+    own = {
+        "MedicationAdministrationDosage": {
+            "type": "object",
+            "title": "MedicationAdministration.dosage",
+            "description": "Dose actually given; read loosely. mad-1: SHALL have at least one of dose or rate[x].",
+            "properties": {
+                "modifierExtension": array_of("Extension", "Extensions that change the meaning of the dosage."),
+                "text": ref("string", "Free-text dosage as given."),
+                "route": ref("CodeableConcept", "How the drug entered the body."),
+                "dose": ref("SimpleQuantity", "Amount given per administration."),
+                "rateRatio": ref("Ratio", "Speed of administration, as a ratio."),
+                "rateQuantity": ref("SimpleQuantity", "Speed of administration."),
+            },
+            "allOf": [
+                present_any(["dose", "rateRatio", "rateQuantity"]),
+                at_most_one(["rateRatio", "rateQuantity"], "rate[x]"),
+            ],
+            "additionalProperties": True,
+        }
+    }
+    all_of = [
+        required_primitive("status"),
+        exactly_one(MEDICATION_KEYS, "medication[x]"),
+        {
+            "description": "effective[x] is mandatory (1..1): effectiveDateTime (or its _effectiveDateTime companion) or effectivePeriod.",
+            "anyOf": [{"required": [k]} for k in effective_keys + ["_effectiveDateTime"]],
+        },
+        at_most_one(effective_keys, "effective[x]"),
+    ]
+    return document(
+        "medicationadministration", "calcium-cds MedicationAdministration input profile",
+        "FHIR R4 MedicationAdministration as read by the cause assessment (doses actually given, e.g. a phosphate "
+        "enema or a transfusion-related citrate load). All other R4 elements are allowed.",
+        props, ["resourceType", "subject"], all_of, own_defs=own)
+
+
+def medication():
+    props = resource_common("Medication")
+    props.update({
+        "code": ref("CodeableConcept", "The medication, e.g. WHO ATC or RxNorm, and/or text."),
+        "status": {
+            "enum": ["active", "inactive", "entered-in-error"],
+            "description": "Whether the medication record is in use (medication-status, required binding).",
+        },
+        "form": ref("CodeableConcept", "Dose form, e.g. tablet or solution."),
+        "amount": ref("Ratio", "Amount of drug in the package."),
+        "ingredient": {
+            "type": "array",
+            "minItems": 1,
+            "items": {"$ref": "#/$defs/MedicationIngredient"},
+            "description": "Active or inactive ingredients; read loosely.",
+        },
+    })
+    own = {
+        "MedicationIngredient": {
+            "type": "object",
+            "title": "Medication.ingredient",
+            "description": "One ingredient. item[x] is mandatory (1..1).",
+            "properties": {
+                "modifierExtension": array_of("Extension", "Extensions that change the meaning of the ingredient."),
+                "itemCodeableConcept": ref("CodeableConcept", "The ingredient as a code."),
+                "itemReference": ref("Reference", "The ingredient as a Substance or Medication."),
+                "isActive": ref("boolean", "Whether it is an active ingredient."),
+                "strength": ref("Ratio", "Quantity of ingredient per unit of the medication."),
+            },
+            "allOf": [exactly_one(choice_keys("item", ["CodeableConcept", "Reference"]), "item[x]")],
+            "additionalProperties": True,
+        }
+    }
+    return document(
+        "medication", "calcium-cds Medication input profile",
+        "FHIR R4 Medication, usually contained in or referenced from a MedicationRequest, MedicationStatement or "
+        "MedicationAdministration; the cause assessment reads its code and ingredients. All other R4 elements are allowed.",
+        props, ["resourceType"], None, own_defs=own)
+
+
+# ---------------------------------------------------------------------------
+# Procedure
+# ---------------------------------------------------------------------------
+
+PERFORMED_TYPES = ["DateTime", "Period", "String", "Age", "Range"]
+
+
+def procedure():
+    props = resource_common("Procedure")
+    props.update({
+        "status": {
+            "enum": ["preparation", "in-progress", "not-done", "on-hold", "stopped", "completed",
+                     "entered-in-error", "unknown"],
+            "description": "State of the procedure (EventStatus, required binding; not-done is a modifier).",
+        },
+        "_status": ref("Element", "Extensions on status."),
+        "statusReason": ref("CodeableConcept", "Reason for the current status."),
+        "category": ref("CodeableConcept", "Classification of the procedure."),
+        "code": ref("CodeableConcept", "The procedure, e.g. thyroidectomy or parathyroidectomy."),
+        "subject": ref("Reference", "The patient the procedure was performed on."),
+        "performedDateTime": ref("dateTime", "When the procedure was performed."),
+        "_performedDateTime": ref("Element", "Extensions on performedDateTime."),
+        "performedPeriod": ref("Period", "Period over which the procedure was performed."),
+        "performedString": ref("string", "When the procedure was performed, as text."),
+        "_performedString": ref("Element", "Extensions on performedString."),
+        "performedAge": ref("Age", "Patient age when the procedure was performed."),
+        "performedRange": ref("Range", "Patient age range when the procedure was performed."),
+    })
+    all_of = [
+        required_primitive("status"),
+        at_most_one(choice_keys("performed", PERFORMED_TYPES), "performed[x]"),
+    ]
+    return document(
+        "procedure", "calcium-cds Procedure input profile",
+        "FHIR R4 Procedure as read by the cause assessment (e.g. neck surgery before post-surgical hypoparathyroidism "
+        "or hungry bone). All other R4 elements are allowed.",
+        props, ["resourceType", "subject"], all_of)
+
+
+# ---------------------------------------------------------------------------
 # Bundle
 # ---------------------------------------------------------------------------
 
@@ -680,7 +1024,8 @@ def bundle():
     return document(
         "bundle", "calcium-cds Bundle envelope profile",
         "FHIR R4 Bundle envelope. Checks the Bundle itself and the shape of each entry; each entry.resource is "
-        "validated separately against the profile for its resourceType (patient, observation, condition).",
+        "validated separately against the profile for its resourceType (patient, observation, condition, "
+        "medicationrequest, medicationstatement, medicationadministration, medication, procedure).",
         props, ["resourceType"], all_of, own_defs=own)
 
 
@@ -776,6 +1121,11 @@ BUILDERS = {
     "patient": patient,
     "observation": observation,
     "condition": condition,
+    "medicationrequest": medication_request,
+    "medicationstatement": medication_statement,
+    "medicationadministration": medication_administration,
+    "medication": medication,
+    "procedure": procedure,
 }
 
 

@@ -29,7 +29,9 @@ fn assess(args: &AssessArgs) -> ExitCode {
         Some(text) => match datetime::parse_date_time(text) {
             Ok(t) if t.date_only.is_none() => (t.when.latest, true),
             _ => {
-                eprintln!("calcium-cds: --now must be an RFC 3339 date-time with seconds and an offset, e.g. 2026-11-30T15:00:00Z");
+                eprintln!(
+                    "calcium-cds: --now must be an RFC 3339 date-time with seconds and an offset, e.g. 2026-11-30T15:00:00Z"
+                );
                 return ExitCode::from(EXIT_CONFIG_ERROR);
             }
         },

@@ -68,7 +68,8 @@ pub fn load_rules(site: Option<&PathBuf>) -> Result<LoadedRules, String> {
     match site {
         None => rules::load::load(None).map_err(|e| e.to_string()),
         Some(path) => {
-            let text = std::fs::read_to_string(path).map_err(|e| format!("cannot read rule file {}: {e}", path.display()))?;
+            let text =
+                std::fs::read_to_string(path).map_err(|e| format!("cannot read rule file {}: {e}", path.display()))?;
             let name = path.display().to_string();
             rules::load::load(Some((&name, &text))).map_err(|e| e.to_string())
         }

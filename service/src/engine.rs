@@ -3,7 +3,7 @@
 
 use serde_json::Value;
 
-use crate::clinical::status;
+use crate::clinical::{status, workup};
 use crate::fhir::outcome::RequestError;
 use crate::fhir::profiles::Profiles;
 use crate::fhir::{read, write};
@@ -51,7 +51,6 @@ impl Engine {
         let doc = read::parse(body)?;
         let ingested = read::read_value(&doc, &self.rules.rules, &self.profiles, now, now_fixed)?;
         let mut assessment = status::assess(&ingested.facts, &self.rules.rules);
-        assessment.unused.extend(status::unused_by_status(&ingested.facts));
         let ctx = write::OutputContext {
             rules: &self.rules,
             software_version: VERSION,
@@ -60,7 +59,28 @@ impl Engine {
             // Over the parsed document, so that whitespace does not change ids.
             request_digest: write::request_digest(&doc),
         };
-        let bundle = write::result_bundle(&ctx, &ingested, &assessment);
+        let workup = assessment.finding.as_ref().and_then(|f| workup::run(&ingested.facts, &self.rules.rules, f));
+        if let Some(w) = &workup {
+            assessment.unused.extend(w.unused.iter().cloned());
+            if w.leading_tied && !w.plan.proposals.is_empty() && assessment.status != status::GuidanceStatus::Failure {
+                assessment.status = status::GuidanceStatus::DataRequired;
+            }
+        }
+        // Everything recognised that no rule read is listed too.
+        let read_by_workup: Vec<&str> = workup
+            .iter()
+            .flat_map(|w| w.readings.labs.values().chain(w.readings.egfr.iter()))
+            .flat_map(|r| r.sources.iter().map(|s| s.expression.as_str()))
+            .collect();
+        let listed: Vec<String> = assessment.unused.iter().map(|u| u.source.expression.clone()).collect();
+        let rest: Vec<_> = status::unused_by_status(&ingested.facts)
+            .into_iter()
+            .filter(|u| {
+                !read_by_workup.contains(&u.source.expression.as_str()) && !listed.contains(&u.source.expression)
+            })
+            .collect();
+        assessment.unused.extend(rest);
+        let bundle = write::result_bundle(&ctx, &ingested, &assessment, workup.as_ref());
         Ok(Outcome {
             bundle,
             status: assessment.status.code(),

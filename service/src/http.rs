@@ -46,9 +46,11 @@ pub struct Application {
 impl Application {
     /// Bind and wire the service.
     pub fn build(settings: &ServeArgs, engine: Engine) -> Result<Self, String> {
-        let listener = TcpListener::bind(settings.listen).map_err(|e| format!("cannot listen on {}: {e}", settings.listen))?;
+        let listener =
+            TcpListener::bind(settings.listen).map_err(|e| format!("cannot listen on {}: {e}", settings.listen))?;
         let port = listener.local_addr().map_err(|e| e.to_string())?.port();
-        let mut capability: Value = serde_json::from_str(CAPABILITY).map_err(|e| format!("CapabilityStatement: {e}"))?;
+        let mut capability: Value =
+            serde_json::from_str(CAPABILITY).map_err(|e| format!("CapabilityStatement: {e}"))?;
         capability["software"]["version"] = Value::String(VERSION.to_owned());
         let operation: Value = serde_json::from_str(OPERATION).map_err(|e| format!("OperationDefinition: {e}"))?;
         let state = Arc::new(AppState {
@@ -127,18 +129,20 @@ async fn assess(req: HttpRequest, payload: web::Payload, state: web::Data<AppSta
             format!("The request body is larger than the limit of {} bytes.", state.body_limit),
         ))
     };
-    let declared = req
-        .headers()
-        .get(header::CONTENT_LENGTH)
-        .and_then(|v| v.to_str().ok())
-        .and_then(|v| v.parse::<usize>().ok());
+    let declared =
+        req.headers().get(header::CONTENT_LENGTH).and_then(|v| v.to_str().ok()).and_then(|v| v.parse::<usize>().ok());
     if declared.is_some_and(|n| n > state.body_limit) {
         return too_large();
     }
     let body = match payload.to_bytes_limited(state.body_limit).await {
         Err(_) => return too_large(),
         Ok(Err(_)) => {
-            return error_response(&RequestError::single(400, IssueCode::Structure, "", "The request body could not be read."));
+            return error_response(&RequestError::single(
+                400,
+                IssueCode::Structure,
+                "",
+                "The request body could not be read.",
+            ));
         }
         Ok(Ok(b)) => b,
     };
@@ -180,9 +184,20 @@ async fn readyz(state: web::Data<AppState>) -> HttpResponse {
 }
 
 async fn not_found(req: HttpRequest) -> HttpResponse {
-    let known = ["/fhir/$assess", "/fhir/metadata", "/fhir/OperationDefinition/assess", "/livez", "/readyz"];
-    if known.contains(&req.path()) {
-        return error_response(&RequestError::single(405, IssueCode::NotSupported, "", format!("Method {} is not allowed here.", req.method())));
+    let allowed = match req.path() {
+        "/fhir/$assess" => Some("POST"),
+        "/fhir/metadata" | "/fhir/OperationDefinition/assess" | "/livez" | "/readyz" => Some("GET"),
+        _ => None,
+    };
+    if let Some(allow) = allowed {
+        let mut res = error_response(&RequestError::single(
+            405,
+            IssueCode::NotSupported,
+            "",
+            format!("Method {} is not allowed here; use {allow}.", req.method()),
+        ));
+        res.headers_mut().insert(header::ALLOW, HeaderValue::from_static(allow));
+        return res;
     }
     error_response(&RequestError::single(404, IssueCode::NotFound, "", "No such endpoint. See GET /fhir/metadata."))
 }

@@ -67,7 +67,8 @@ fn document_bundle() -> Value {
     let s = Scenario::new().add(Lab::IonizedCa, "ica-1", 1.20, 2.0);
     let mut bundle = s.bundle();
     bundle["type"] = json!("document");
-    bundle["identifier"] = json!({ "system": "urn:ietf:rfc:3986", "value": "urn:uuid:6d2e9a41-0b3c-4f7d-8e15-a9c4b2d7e301" });
+    bundle["identifier"] =
+        json!({ "system": "urn:ietf:rfc:3986", "value": "urn:uuid:6d2e9a41-0b3c-4f7d-8e15-a9c4b2d7e301" });
     let composition = json!({
         "fullUrl": "urn:uuid:9e7d6c5b-4a39-4281-b0f1-e2d3c4b5a697",
         "resource": {
@@ -143,7 +144,13 @@ async fn request_level_problems_are_refused_with_a_located_operation_outcome() {
             vec!["Bundle.entry[1].resource.id", "Bundle.entry[2].resource.id"],
         ),
         ("Bundle.type document", document_bundle().to_string(), FHIR_JSON, 422, vec!["Bundle.type"]),
-        ("Parameters without a bundle part", parameters_without_bundle().to_string(), FHIR_JSON, 422, vec!["Parameters.parameter"]),
+        (
+            "Parameters without a bundle part",
+            parameters_without_bundle().to_string(),
+            FHIR_JSON,
+            422,
+            vec!["Parameters.parameter"],
+        ),
         (
             "Parameters whose bundle part is a Patient",
             parameters_with_patient_as_bundle().to_string(),
@@ -191,6 +198,45 @@ async fn a_body_over_a_small_limit_is_413() {
     refused(&app, "under 512 bytes", small, FHIR_JSON, 422).await;
 }
 
+/// Send a body with chunked transfer encoding (no Content-Length, so the limit
+/// must be enforced while reading); returns the status code and the body.
+fn post_chunked(address: &str, body: &str) -> (u16, String) {
+    use std::io::{Read, Write};
+    let host = address.trim_start_matches("http://");
+    let mut stream = std::net::TcpStream::connect(host).expect("connect");
+    let mut request = format!(
+        "POST /fhir/$assess HTTP/1.1\r\nHost: {host}\r\nContent-Type: {FHIR_JSON}\r\nTransfer-Encoding: chunked\r\nConnection: close\r\n\r\n"
+    );
+    for chunk in body.as_bytes().chunks(100) {
+        request.push_str(&format!("{:x}\r\n{}\r\n", chunk.len(), String::from_utf8_lossy(chunk)));
+    }
+    request.push_str("0\r\n\r\n");
+    // The server may answer and close before it has read everything.
+    let _ = stream.write_all(request.as_bytes());
+    let mut response = Vec::new();
+    let _ = stream.read_to_end(&mut response);
+    let response = String::from_utf8_lossy(&response).into_owned();
+    let status = response.split(' ').nth(1).and_then(|s| s.parse().ok()).unwrap_or(0);
+    let body = response.split_once("\r\n\r\n").map(|(_, b)| b.to_owned()).unwrap_or_default();
+    (status, body)
+}
+
+#[tokio::test]
+async fn a_chunked_body_over_the_limit_is_413() {
+    let app = spawn_app_with_body_limit(512).await;
+    let body = Scenario::new().add(Lab::IonizedCa, "ica-1", 1.20, 2.0).bundle().to_string();
+    assert!(body.len() > 512);
+    let address = app.address.clone();
+    let (status, text) = tokio::task::spawn_blocking(move || post_chunked(&address, &body)).await.expect("joined");
+    assert_eq!(status, 413, "{text}");
+    assert!(text.contains("too-costly"), "{text}");
+    // The same way, under the limit, is read.
+    let address = app.address.clone();
+    let small = json!({ "resourceType": "Basic" }).to_string();
+    let (status, text) = tokio::task::spawn_blocking(move || post_chunked(&address, &small)).await.expect("joined");
+    assert_eq!(status, 422, "{text}");
+}
+
 /// A valid request padded (in an Observation note) to `size` bytes.
 fn padded_request(size: usize) -> String {
     let s = Scenario::new();
@@ -215,11 +261,14 @@ async fn the_default_limit_is_one_mebibyte() {
     assert_eq!(response.status().as_u16(), 200);
 }
 
+/// A change made to a built resource.
+type Edit = fn(&mut Value);
+
 #[tokio::test]
 async fn a_refused_patient_is_not_echoed() {
     let app = spawn_app().await;
     let s = Scenario::new().add(Lab::IonizedCa, "ica-1", 1.20, 2.0);
-    let edits: Vec<(&str, fn(&mut Value))> = vec![
+    let edits: Vec<(&str, Edit)> = vec![
         ("birth date not an R4 date, gender not a code", |p| {
             p["birthDate"] = json!("14/03/2020");
             p["gender"] = json!("girl Juniper");
@@ -258,7 +307,7 @@ struct SetAsideCase {
     name: &'static str,
     lab: Lab,
     value: f64,
-    edit: fn(&mut Value),
+    edit: Edit,
     /// Where the problem is, after `Bundle.entry[1].resource`.
     at: &'static str,
     /// Add a usable, normal ionized calcium (1.21 mmol/L, older than the bad one).
@@ -268,32 +317,163 @@ struct SetAsideCase {
 fn set_aside_cases() -> Vec<SetAsideCase> {
     let case = |name, lab, value, edit, at, companion| SetAsideCase { name, lab, value, edit, at, companion };
     vec![
-        case("another patient's result", Lab::IonizedCa, BAD_IONIZED, |o| o["subject"]["reference"] = json!(OTHER_PATIENT_URL), ".subject.reference", false),
-        case("another patient's result, beside a usable one", Lab::IonizedCa, BAD_IONIZED, |o| o["subject"]["reference"] = json!(OTHER_PATIENT_URL), ".subject.reference", true),
-        case("a string where a Quantity belongs", Lab::TotalCa, BAD_TOTAL, |o| o["valueQuantity"] = json!("9.1 mg/dL"), ".valueQuantity", false),
-        case("a unit code that is not UCUM (mg/dl)", Lab::TotalCa, BAD_TOTAL, |o| o["valueQuantity"]["code"] = json!("mg/dl"), ".valueQuantity.code", false),
-        case("no unit code", Lab::TotalCa, BAD_TOTAL, |o| {
-            o["valueQuantity"].as_object_mut().unwrap().remove("code");
-        }, ".valueQuantity.code", false),
-        case("a unit system that is not UCUM", Lab::TotalCa, BAD_TOTAL, |o| o["valueQuantity"]["system"] = json!("https://larkspur-childrens.example.org/units"), ".valueQuantity.system", false),
+        case(
+            "another patient's result",
+            Lab::IonizedCa,
+            BAD_IONIZED,
+            |o| o["subject"]["reference"] = json!(OTHER_PATIENT_URL),
+            ".subject.reference",
+            false,
+        ),
+        case(
+            "another patient's result, beside a usable one",
+            Lab::IonizedCa,
+            BAD_IONIZED,
+            |o| o["subject"]["reference"] = json!(OTHER_PATIENT_URL),
+            ".subject.reference",
+            true,
+        ),
+        case(
+            "a string where a Quantity belongs",
+            Lab::TotalCa,
+            BAD_TOTAL,
+            |o| o["valueQuantity"] = json!("9.1 mg/dL"),
+            ".valueQuantity",
+            false,
+        ),
+        // UCUM is case-sensitive: MG/DL is not a UCUM code; milliequivalents are `meq`, not `mEq`.
+        case(
+            "a unit code that is not UCUM (MG/DL)",
+            Lab::TotalCa,
+            BAD_TOTAL,
+            |o| o["valueQuantity"]["code"] = json!("MG/DL"),
+            ".valueQuantity.code",
+            false,
+        ),
+        case(
+            "a unit code that is not UCUM (mEq/L)",
+            Lab::IonizedCa,
+            BAD_IONIZED,
+            |o| o["valueQuantity"]["code"] = json!("mEq/L"),
+            ".valueQuantity.code",
+            false,
+        ),
+        case(
+            "a unit code that is not UCUM (mg%)",
+            Lab::TotalCa,
+            BAD_TOTAL,
+            |o| o["valueQuantity"]["code"] = json!("mg%"),
+            ".valueQuantity.code",
+            false,
+        ),
+        case(
+            "no unit code",
+            Lab::TotalCa,
+            BAD_TOTAL,
+            |o| {
+                o["valueQuantity"].as_object_mut().unwrap().remove("code");
+            },
+            ".valueQuantity.code",
+            false,
+        ),
+        case(
+            "a unit system that is not UCUM",
+            Lab::TotalCa,
+            BAD_TOTAL,
+            |o| o["valueQuantity"]["system"] = json!("https://larkspur-childrens.example.org/units"),
+            ".valueQuantity.system",
+            false,
+        ),
         case("a negative value", Lab::IonizedCa, -0.75, |_| {}, ".valueQuantity.value", false),
         case("a negative value, beside a usable one", Lab::IonizedCa, -0.75, |_| {}, ".valueQuantity.value", true),
-        case("a physiologically impossible total calcium (90 mg/dL)", Lab::TotalCa, 90.0, |_| {}, ".valueQuantity.value", false),
-        case("an effective time in the future", Lab::IonizedCa, BAD_IONIZED, |o| o["effectiveDateTime"] = json!(rfc3339(now_unix() + 2 * 86_400)), ".effectiveDateTime", false),
-        case("an effective time in the future, beside a usable one", Lab::IonizedCa, BAD_IONIZED, |o| o["effectiveDateTime"] = json!(rfc3339(now_unix() + 2 * 86_400)), ".effectiveDateTime", true),
-        case("status entered-in-error", Lab::IonizedCa, BAD_IONIZED, |o| o["status"] = json!("entered-in-error"), ".status", false),
-        case("status entered-in-error, beside a usable one", Lab::IonizedCa, BAD_IONIZED, |o| o["status"] = json!("entered-in-error"), ".status", true),
-        case("status registered (no result yet)", Lab::IonizedCa, BAD_IONIZED, |o| o["status"] = json!("registered"), ".status", false),
-        case("a dataAbsentReason", Lab::TotalCa, BAD_TOTAL, |o| {
-            o.as_object_mut().unwrap().remove("valueQuantity");
-            o["dataAbsentReason"] = json!({ "coding": [{ "system": "http://terminology.hl7.org/CodeSystem/data-absent-reason", "code": "error" }], "text": "Haemolysed" });
-        }, ".dataAbsentReason", false),
-        case("an unknown modifierExtension", Lab::IonizedCa, BAD_IONIZED, |o| o["modifierExtension"] = json!([{
-            "url": "https://larkspur-childrens.example.org/fhir/StructureDefinition/result-disputed",
-            "valueBoolean": true
-        }]), ".modifierExtension", false),
-        case("comparator <", Lab::IonizedCa, 0.5, |o| o["valueQuantity"]["comparator"] = json!("<"), ".valueQuantity.comparator", false),
-        case("comparator <, beside a usable one", Lab::IonizedCa, 0.5, |o| o["valueQuantity"]["comparator"] = json!("<"), ".valueQuantity.comparator", true),
+        case(
+            "a physiologically impossible total calcium (90 mg/dL)",
+            Lab::TotalCa,
+            90.0,
+            |_| {},
+            ".valueQuantity.value",
+            false,
+        ),
+        case(
+            "an effective time in the future",
+            Lab::IonizedCa,
+            BAD_IONIZED,
+            |o| o["effectiveDateTime"] = json!(rfc3339(now_unix() + 2 * 86_400)),
+            ".effectiveDateTime",
+            false,
+        ),
+        case(
+            "an effective time in the future, beside a usable one",
+            Lab::IonizedCa,
+            BAD_IONIZED,
+            |o| o["effectiveDateTime"] = json!(rfc3339(now_unix() + 2 * 86_400)),
+            ".effectiveDateTime",
+            true,
+        ),
+        case(
+            "status entered-in-error",
+            Lab::IonizedCa,
+            BAD_IONIZED,
+            |o| o["status"] = json!("entered-in-error"),
+            ".status",
+            false,
+        ),
+        case(
+            "status entered-in-error, beside a usable one",
+            Lab::IonizedCa,
+            BAD_IONIZED,
+            |o| o["status"] = json!("entered-in-error"),
+            ".status",
+            true,
+        ),
+        case(
+            "status registered (no result yet)",
+            Lab::IonizedCa,
+            BAD_IONIZED,
+            |o| o["status"] = json!("registered"),
+            ".status",
+            false,
+        ),
+        case(
+            "a dataAbsentReason",
+            Lab::TotalCa,
+            BAD_TOTAL,
+            |o| {
+                o.as_object_mut().unwrap().remove("valueQuantity");
+                o["dataAbsentReason"] = json!({ "coding": [{ "system": "http://terminology.hl7.org/CodeSystem/data-absent-reason", "code": "error" }], "text": "Haemolysed" });
+            },
+            ".dataAbsentReason",
+            false,
+        ),
+        case(
+            "an unknown modifierExtension",
+            Lab::IonizedCa,
+            BAD_IONIZED,
+            |o| {
+                o["modifierExtension"] = json!([{
+                    "url": "https://larkspur-childrens.example.org/fhir/StructureDefinition/result-disputed",
+                    "valueBoolean": true
+                }])
+            },
+            ".modifierExtension",
+            false,
+        ),
+        case(
+            "comparator <",
+            Lab::IonizedCa,
+            0.5,
+            |o| o["valueQuantity"]["comparator"] = json!("<"),
+            ".valueQuantity.comparator",
+            false,
+        ),
+        case(
+            "comparator <, beside a usable one",
+            Lab::IonizedCa,
+            0.5,
+            |o| o["valueQuantity"]["comparator"] = json!("<"),
+            ".valueQuantity.comparator",
+            true,
+        ),
     ]
 }
 
@@ -332,7 +512,10 @@ async fn a_bad_result_is_set_aside_named_and_not_used() {
         let summary = guidance_notes(&result).first().cloned().unwrap_or_default();
         if c.companion {
             assert_eq!(guidance_status(&result), "success", "case '{name}'");
-            assert!(summary.starts_with("No hypocalcemia") && summary.contains("1.21 mmol/L"), "case '{name}': {summary}");
+            assert!(
+                summary.starts_with("No hypocalcemia") && summary.contains("1.21 mmol/L"),
+                "case '{name}': {summary}"
+            );
             assert!(cited.iter().any(|r| r == "Observation/ica-good"), "case '{name}': {cited:?}");
         } else {
             assert_eq!(guidance_status(&result), "data-required", "case '{name}'");
@@ -365,4 +548,26 @@ async fn a_preliminary_result_is_used_with_a_caution() {
         !issue_expressions(&issues).iter().any(|e| e.starts_with("Bundle.entry[1]")),
         "the preliminary result is listed as not used: {issues:?}"
     );
+}
+
+#[tokio::test]
+async fn mg_per_dl_with_a_lower_case_litre_is_ucum_and_is_used() {
+    // UCUM defines the litre as both `l` and `L`, so `mg/dl` is the same unit
+    // as `mg/dL`: the result is read, and read the same way.
+    let app = spawn_app().await;
+    let request = |code: &'static str| {
+        Scenario::new()
+            .add_edited(Lab::TotalCa, "tca-1", 6.0, 1.0, move |o| o["valueQuantity"]["code"] = json!(code))
+            .add(Lab::Albumin, "alb-1", 4.0, 1.0)
+            .bundle()
+    };
+    let lower = app.assess_ok(&request("mg/dl")).await;
+    let upper = app.assess_ok(&request("mg/dL")).await;
+    for result in [&lower, &upper] {
+        // 6.0 + 0.8 x (4.0 - 4.0) = 6.0 mg/dL = 60 / 40.078 = 1.50 mmol/L: below the severe grade 1.8.
+        let derived = crate::helpers::only(result, "Observation");
+        assert_eq!(derived["valueQuantity"]["value"], json!(1.5), "{derived}");
+        assert_eq!(crate::helpers::only(result, "DetectedIssue")["severity"], "high");
+        assert!(issue_at(&outcome_issues(result), "Bundle.entry[1].resource.valueQuantity.code").is_none());
+    }
 }

@@ -54,10 +54,8 @@ pub async fn spawn_app_with_body_limit(body_limit: usize) -> TestApp {
     let address = format!("http://127.0.0.1:{}", app.port());
     // actix's Server is a plain future; its workers run on their own threads.
     tokio::spawn(app.run_until_stopped());
-    let client = reqwest::Client::builder()
-        .redirect(reqwest::redirect::Policy::none())
-        .build()
-        .expect("an HTTP client");
+    let client =
+        reqwest::Client::builder().redirect(reqwest::redirect::Policy::none()).build().expect("an HTTP client");
     TestApp { address, client }
 }
 
@@ -102,12 +100,7 @@ impl TestApp {
 
 /// The Content-Type header of a response ("" when absent).
 pub fn content_type(response: &reqwest::Response) -> String {
-    response
-        .headers()
-        .get(reqwest::header::CONTENT_TYPE)
-        .and_then(|v| v.to_str().ok())
-        .unwrap_or("")
-        .to_owned()
+    response.headers().get(reqwest::header::CONTENT_TYPE).and_then(|v| v.to_str().ok()).unwrap_or("").to_owned()
 }
 
 // ---------------------------------------------------------------------------
@@ -279,13 +272,7 @@ pub fn example(name: &str) -> String {
 pub fn resources<'a>(bundle: &'a Value, resource_type: &str) -> Vec<&'a Value> {
     bundle["entry"]
         .as_array()
-        .map(|entries| {
-            entries
-                .iter()
-                .map(|e| &e["resource"])
-                .filter(|r| r["resourceType"] == resource_type)
-                .collect()
-        })
+        .map(|entries| entries.iter().map(|e| &e["resource"]).filter(|r| r["resourceType"] == resource_type).collect())
         .unwrap_or_default()
 }
 
@@ -325,9 +312,7 @@ pub fn issue_expressions(issues: &[Value]) -> Vec<String> {
 
 /// The issue whose expression list contains `expression` exactly.
 pub fn issue_at<'a>(issues: &'a [Value], expression: &str) -> Option<&'a Value> {
-    issues
-        .iter()
-        .find(|i| i["expression"].as_array().is_some_and(|e| e.iter().any(|x| x == expression)))
+    issues.iter().find(|i| i["expression"].as_array().is_some_and(|e| e.iter().any(|x| x == expression)))
 }
 
 /// Every `reference` string anywhere inside a value.
@@ -512,7 +497,8 @@ impl Scenario {
     pub fn bundle(&self) -> Value {
         let mut entries = vec![json!({ "fullUrl": PATIENT_URL, "resource": self.patient() })];
         for (i, r) in self.entries.iter().enumerate() {
-            entries.push(json!({ "fullUrl": format!("urn:uuid:0c4a7e2f-5d1b-4e8a-9f3c-{:012x}", i + 1), "resource": r }));
+            entries
+                .push(json!({ "fullUrl": format!("urn:uuid:0c4a7e2f-5d1b-4e8a-9f3c-{:012x}", i + 1), "resource": r }));
         }
         json!({ "resourceType": "Bundle", "type": "collection", "timestamp": rfc3339(self.now), "entry": entries })
     }

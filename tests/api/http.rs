@@ -90,7 +90,6 @@ async fn get_on_assess_is_a_405_operation_outcome() {
 /// RFC 9110 section 15.5.6: a 405 response MUST carry an Allow header listing
 /// the methods the resource supports.
 #[tokio::test]
-#[ignore = "bug: 405 from GET /fhir/$assess has no Allow header (RFC 9110 15.5.6 requires Allow: POST)"]
 async fn get_on_assess_names_the_allowed_method() {
     let app = spawn_app().await;
     let response = app.get("/fhir/$assess").await;

@@ -187,6 +187,34 @@ pub struct SymptomFinding {
     pub source: Source,
 }
 
+/// The kind of a coded event.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum EventKind {
+    /// A Condition.
+    Condition,
+    /// A medication (MedicationRequest, MedicationStatement, MedicationAdministration).
+    Medication,
+    /// A Procedure.
+    Procedure,
+}
+
+/// A condition, medication or procedure matched to the rule set's code lists.
+#[derive(Debug, Clone)]
+pub struct CodedEvent {
+    /// Kind.
+    pub kind: EventKind,
+    /// Ids of the code lists its code belongs to.
+    pub lists: Vec<String>,
+    /// When (onset, administration, performance), if known.
+    pub when: Option<When>,
+    /// That time as written.
+    pub when_text: Option<String>,
+    /// The matching code.
+    pub code: Code,
+    /// Where it came from.
+    pub source: Source,
+}
+
 /// Administrative gender, as far as the rules care.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 #[allow(missing_docs, reason = "FHIR administrative-gender codes")]
@@ -217,6 +245,8 @@ pub struct Facts {
     pub measurements: Vec<Measurement>,
     /// Symptom findings.
     pub symptoms: Vec<SymptomFinding>,
+    /// Conditions, medications and procedures in the rule set's code lists.
+    pub events: Vec<CodedEvent>,
     /// Gestational age at birth in weeks, if recorded.
     pub gestational_age_weeks: Option<f64>,
     /// Evaluation time, unix seconds.
@@ -226,8 +256,7 @@ pub struct Facts {
 impl Facts {
     /// Measurements of one analyte, most recent first (ties keep input order).
     pub fn of(&self, analyte: Analyte) -> Vec<&Measurement> {
-        let mut found: Vec<&Measurement> =
-            self.measurements.iter().filter(|m| m.analyte == analyte).collect();
+        let mut found: Vec<&Measurement> = self.measurements.iter().filter(|m| m.analyte == analyte).collect();
         found.sort_by_key(|m| std::cmp::Reverse(m.when.latest));
         found
     }

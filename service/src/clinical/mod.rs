@@ -4,8 +4,11 @@
 //! writer turns `status::Assessment` into resources.
 
 pub mod bands;
+pub mod causes;
 pub mod facts;
 pub mod format;
+pub mod planner;
 pub mod status;
 pub mod time;
 pub mod units;
+pub mod workup;

@@ -9,6 +9,7 @@
 use super::bands::{self, BandChoice, NoBand};
 use super::facts::{Analyte, Facts, Measurement, ResultStatus, Source, SymptomFinding};
 use super::format::{num, value_with_mg_dl};
+use super::time::When;
 use crate::rules::model::{AgeBand, Interval, IssueSeverity, RuleSet};
 
 /// GuidanceResponse.status the assessment supports.
@@ -148,6 +149,8 @@ pub struct CalciumFinding {
     pub evidence: Vec<Source>,
     /// The calcium result's time as the input wrote it.
     pub effective_text: String,
+    /// The calcium result's time.
+    pub when: When,
     /// Some input was preliminary.
     pub preliminary: bool,
 }
@@ -275,8 +278,15 @@ fn fresh<'f>(ctx: &mut Ctx<'f>, analyte: Analyte) -> Vec<&'f Measurement> {
 
 /// Run the calcium status rules.
 pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
-    let mut ctx =
-        Ctx { rules, facts, basis: Vec::new(), cautions: Vec::new(), needs: Vec::new(), unused: Vec::new(), needs_birth_date: false };
+    let mut ctx = Ctx {
+        rules,
+        facts,
+        basis: Vec::new(),
+        cautions: Vec::new(),
+        needs: Vec::new(),
+        unused: Vec::new(),
+        needs_birth_date: false,
+    };
     let ionized = fresh(&mut ctx, Analyte::CalciumIonized);
     let totals = fresh(&mut ctx, Analyte::CalciumTotal);
     let albumins = fresh(&mut ctx, Analyte::Albumin);
@@ -286,11 +296,8 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
     let mut derived: Option<(DerivedAdjusted, &Measurement)> = None;
     let chosen: Option<(Measure, &Measurement, Option<&Measurement>)> = if let Some(first) = ionized.first() {
         // Prefer a result not adjusted to pH 7.4 when two share the same time.
-        let best = ionized
-            .iter()
-            .find(|m| m.when.latest == first.when.latest && !m.ph_adjusted)
-            .copied()
-            .unwrap_or(first);
+        let best =
+            ionized.iter().find(|m| m.when.latest == first.when.latest && !m.ph_adjusted).copied().unwrap_or(first);
         Some((Measure::Ionized, best, None))
     } else if let Some(total) = totals.first().copied() {
         let window = ctx.hours(rules.windows.albumin_pairing_hours);
@@ -315,7 +322,10 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
             Analyte::CalciumIonized,
             "No usable calcium result: an ionized calcium (preferred) or a total calcium with an albumin from the same draw is needed.",
         );
-        ctx.need(Analyte::CalciumTotal, "Needed, with an albumin from the same draw, when no ionized calcium can be measured.");
+        ctx.need(
+            Analyte::CalciumTotal,
+            "Needed, with an albumin from the same draw, when no ionized calcium can be measured.",
+        );
         ctx.need(Analyte::Albumin, "Needed to adjust a total calcium.");
         for m in &albumins {
             ctx.unused(m, "no calcium result to adjust");
@@ -401,17 +411,14 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
             (c, g, *band)
         })
         .collect();
-    let worst = judged
-        .iter()
-        .max_by_key(|(c, g, _)| (*c, g.as_ref().map(|g| g.severity)))
-        .cloned();
+    let worst = judged.iter().max_by_key(|(c, g, _)| (*c, g.as_ref().map(|g| g.severity))).cloned();
     let Some((classification, grade, band)) = worst else {
         return finish(ctx, GuidanceStatus::Failure, None, None);
     };
     if judged.len() > 1 {
-        let agree = judged.iter().all(|(c, g, _)| {
-            *c == classification && g.as_ref().map(|g| &g.grade) == grade.as_ref().map(|g| &g.grade)
-        });
+        let agree = judged
+            .iter()
+            .all(|(c, g, _)| *c == classification && g.as_ref().map(|g| &g.grade) == grade.as_ref().map(|g| &g.grade));
         let labels: Vec<&str> = judged.iter().map(|(_, _, b)| b.label.as_str()).collect();
         ctx.basis.push(if agree {
             format!("The possible age bands ({}) give the same result.", labels.join("; "))
@@ -440,11 +447,9 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         used.source
     ));
     ctx.basis.push(match classification {
-        Classification::Low => format!(
-            "{} mmol/L is below the lower limit {} mmol/L: hypocalcemia.",
-            num(value, 2),
-            num(used.lower, 2)
-        ),
+        Classification::Low => {
+            format!("{} mmol/L is below the lower limit {} mmol/L: hypocalcemia.", num(value, 2), num(used.lower, 2))
+        }
         Classification::High => format!(
             "{} mmol/L is above the upper limit {} mmol/L. High calcium is outside the scope of these rules.",
             num(value, 2),
@@ -504,6 +509,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         severity: None,
         evidence,
         effective_text: calcium.when_text.clone(),
+        when: calcium.when,
         preliminary,
     };
     if finding.is_low() {
@@ -582,7 +588,8 @@ impl Ctx<'_> {
     fn need_birth_date(&mut self) {
         self.needs_birth_date = true;
         self.cautions.push(
-            "Patient.birthDate is needed to choose age-specific reference intervals; no status was assigned.".to_owned(),
+            "Patient.birthDate is needed to choose age-specific reference intervals; no status was assigned."
+                .to_owned(),
         );
     }
 }
@@ -787,14 +794,11 @@ pub fn unused_by_status(facts: &Facts) -> Vec<Unused> {
         .measurements
         .iter()
         .filter(|m| {
-            !matches!(
-                m.analyte,
-                A::CalciumIonized | A::CalciumTotal | A::Albumin | A::CalciumAlbuminAdjusted | A::Qtc
-            )
+            !matches!(m.analyte, A::CalciumIonized | A::CalciumTotal | A::Albumin | A::CalciumAlbuminAdjusted | A::Qtc)
         })
         .map(|m| Unused {
             source: m.source.clone(),
-            reason: format!("recognised ({}) but not read by the calcium status rules", m.analyte.key()),
+            reason: format!("recognised ({}) but not read by the rules that ran", m.analyte.key()),
         })
         .collect()
 }
@@ -827,7 +831,11 @@ mod tests {
     }
 
     fn src(id: &str) -> Source {
-        Source { resource_type: "Observation".into(), reference: Some(format!("Observation/{id}")), expression: format!("Bundle.entry[{id}]") }
+        Source {
+            resource_type: "Observation".into(),
+            reference: Some(format!("Observation/{id}")),
+            expression: format!("Bundle.entry[{id}]"),
+        }
     }
 
     fn m(analyte: Analyte, value: f64, unit: &str, reported: (f64, &str), hours_ago: i64, id: &str) -> Measurement {
@@ -867,10 +875,15 @@ mod tests {
             patient: PatientFacts {
                 birth_date: birth,
                 gender: Gender::Female,
-                source: Source { resource_type: "Patient".into(), reference: Some("Patient/p".into()), expression: "Bundle.entry[0].resource".into() },
+                source: Source {
+                    resource_type: "Patient".into(),
+                    reference: Some("Patient/p".into()),
+                    expression: "Bundle.entry[0].resource".into(),
+                },
             },
             measurements,
             symptoms: Vec::new(),
+            events: Vec::new(),
             gestational_age_weeks: None,
             now: now(),
         }
@@ -886,7 +899,11 @@ mod tests {
             when: hours_ago.map(|h| at(now() - h * HOUR)),
             when_text: hours_ago.map(|h| format!("{h} h ago")),
             code: Code { system: "http://snomed.info/sct".into(), code: "91175000".into(), display: "Seizure".into() },
-            source: Source { resource_type: "Condition".into(), reference: Some("Condition/s".into()), expression: "Bundle.entry[9].resource".into() },
+            source: Source {
+                resource_type: "Condition".into(),
+                reference: Some("Condition/s".into()),
+                expression: "Bundle.entry[9].resource".into(),
+            },
         }
     }
 
@@ -927,7 +944,8 @@ mod tests {
         // Payne 1973 (BMJ 4:643): adjusted Ca = Ca - albumin + 4.0 (mg/100 mL, g/100 mL).
         // Ca 8.0 and albumin 2.0 give 10.0; a site choosing Payne's slope gets it.
         let mut r = rules();
-        r.albumin_adjustment.conventional_slope_mg_dl_per_g_dl = r.albumin_adjustment.payne_original_slope_mg_dl_per_g_dl;
+        r.albumin_adjustment.conventional_slope_mg_dl_per_g_dl =
+            r.albumin_adjustment.payne_original_slope_mg_dl_per_g_dl;
         let f = facts(child(), vec![total_mg(8.0, 1, "tca"), albumin_g_dl(2.0, 1, "alb")]);
         let d = assess(&f, &r).derived.unwrap();
         assert!(close(d.value_mg_dl, 10.0, 1e-9), "{}", d.value_mg_dl);
@@ -937,7 +955,8 @@ mod tests {
     fn payne_si_worked_example() {
         // SI form Ca + 0.02 x (40 - albumin g/L) (GPnotebook; NHS Tayside):
         // Ca 2.00 mmol/L with albumin 30 g/L adjusts to 2.20 mmol/L.
-        let f = facts(child(), vec![total_mmol(2.00, 1, "tca"), m(Analyte::Albumin, 30.0, "g/L", (30.0, "g/L"), 1, "alb")]);
+        let f =
+            facts(child(), vec![total_mmol(2.00, 1, "tca"), m(Analyte::Albumin, 30.0, "g/L", (30.0, "g/L"), 1, "alb")]);
         let a = assess(&f, &rules());
         let d = a.derived.clone().unwrap();
         assert!(close(d.value_mmol_l, 2.20, 1e-9), "{}", d.value_mmol_l);
@@ -953,7 +972,11 @@ mod tests {
         assert_eq!(a.finding.as_ref().unwrap().measure, Measure::TotalUnadjusted);
         assert!(a.derived.is_none());
         assert_eq!(a.status, GuidanceStatus::DataRequired);
-        assert!(a.unused.iter().any(|u| u.source.reference.as_deref() == Some("Observation/alb") && u.reason.contains("same draw")));
+        assert!(
+            a.unused
+                .iter()
+                .any(|u| u.source.reference.as_deref() == Some("Observation/alb") && u.reason.contains("same draw"))
+        );
         assert!(a.data_needs.iter().any(|n| n.analyte == Analyte::Albumin));
     }
 

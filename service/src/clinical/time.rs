@@ -189,9 +189,8 @@ impl Age {
         if days < 0 {
             return None;
         }
-        let mut months = (i64::from(on.year) - i64::from(birth.year)) * 12
-            + i64::from(on.month)
-            - i64::from(birth.month);
+        let mut months =
+            (i64::from(on.year) - i64::from(birth.year)) * 12 + i64::from(on.month) - i64::from(birth.month);
         // A month is completed on the same day-of-month, or on the last day of a
         // shorter month (born 31 Jan: one month old on 28/29 Feb).
         let month_end = on.day == days_in_month(on.year, on.month);

@@ -139,8 +139,7 @@ pub enum UnitError {
 /// Convert `value` in UCUM `from` into the analyte's canonical unit.
 pub fn to_canonical(value: f64, from: &str, rule: &AnalyteRule) -> Result<f64, UnitError> {
     let src = lookup(from).ok_or_else(|| UnitError::Unknown(from.to_owned()))?;
-    let dst = lookup(&rule.canonical_unit)
-        .ok_or_else(|| UnitError::BadCanonical(rule.canonical_unit.clone()))?;
+    let dst = lookup(&rule.canonical_unit).ok_or_else(|| UnitError::BadCanonical(rule.canonical_unit.clone()))?;
     let base = value * src.factor;
     let incompatible = |why| UnitError::Incompatible {
         from: from.to_owned(),

@@ -105,11 +105,8 @@ pub fn parse_date_time(s: &str) -> Result<DateTime, DateError> {
     let (Some(h), Some(m), Some(sec), None) = (p.next(), p.next(), p.next(), p.next()) else {
         return Err(form());
     };
-    let (h, m, sec) = (
-        digits(h, 2).ok_or_else(form)?,
-        digits(m, 2).ok_or_else(form)?,
-        digits(sec, 2).ok_or_else(form)?,
-    );
+    let (h, m, sec) =
+        (digits(h, 2).ok_or_else(form)?, digits(m, 2).ok_or_else(form)?, digits(sec, 2).ok_or_else(form)?);
     if h > 23 || m > 59 || sec > 60 {
         return Err(cal());
     }
@@ -155,7 +152,13 @@ mod tests {
         assert_eq!(format_instant(t.when.latest), "2026-11-30T23:30:00Z");
         let leap = parse_date_time("2016-12-31T23:59:60Z").unwrap();
         assert_eq!(format_instant(leap.when.latest), "2016-12-31T23:59:59Z");
-        for bad in ["2026-11-30T08:15Z", "2026-11-30T08:15:00", "2026-11-30T8:15:00Z", "2026-11-30 08:15:00Z", "2026-11-30T08:15:00.Z"] {
+        for bad in [
+            "2026-11-30T08:15Z",
+            "2026-11-30T08:15:00",
+            "2026-11-30T8:15:00Z",
+            "2026-11-30 08:15:00Z",
+            "2026-11-30T08:15:00.Z",
+        ] {
             assert!(matches!(parse_date_time(bad), Err(DateError::Form(_))), "{bad:?}");
         }
         for bad in ["2026-11-30T24:00:00Z", "2026-02-30T08:00:00Z", "2026-11-30T08:00:00+15:00"] {

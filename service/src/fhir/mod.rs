@@ -6,3 +6,4 @@ pub mod outcome;
 pub mod profiles;
 pub mod read;
 pub mod write;
+pub mod write_workup;

@@ -20,6 +20,9 @@ use crate::clinical::time::When;
 use crate::clinical::units;
 use crate::rules::model::{ObservationCode, RuleSet, SymptomCode};
 
+#[path = "read_events.rs"]
+mod events;
+
 /// The UCUM system URI.
 pub const UCUM: &str = "http://unitsofmeasure.org";
 
@@ -94,7 +97,12 @@ fn whole(status: u16, code: IssueCode, expression: impl Into<String>, diagnostic
 /// deeper than serde_json's limit of 128 levels).
 pub fn parse(body: &[u8]) -> Result<Value, RequestError> {
     if body.iter().all(u8::is_ascii_whitespace) {
-        return Err(whole(400, IssueCode::Structure, "", "The request body is empty; a FHIR Bundle or Parameters resource is expected."));
+        return Err(whole(
+            400,
+            IssueCode::Structure,
+            "",
+            "The request body is empty; a FHIR Bundle or Parameters resource is expected.",
+        ));
     }
     let root: Value = serde_json::from_slice(body).map_err(|e| {
         let what = if e.to_string().contains("recursion limit") {
@@ -119,7 +127,12 @@ pub fn read_value(
     now_fixed: bool,
 ) -> Result<Ingested, RequestError> {
     let Some(obj) = root.as_object() else {
-        return Err(whole(422, IssueCode::Structure, "", "The body is JSON but not a FHIR resource (expected an object with resourceType)."));
+        return Err(whole(
+            422,
+            IssueCode::Structure,
+            "",
+            "The body is JSON but not a FHIR resource (expected an object with resourceType).",
+        ));
     };
     let resource_type = obj.get("resourceType").and_then(Value::as_str).unwrap_or("");
     let mut now_from_request = None;
@@ -134,11 +147,14 @@ pub fn read_value(
             for (i, p) in params.iter().enumerate() {
                 if str_at(p, "name") == Some("now") {
                     let text = str_at(p, "valueDateTime").or_else(|| str_at(p, "valueInstant")).unwrap_or("");
-                    let parsed = datetime::parse_date_time(text)
-                        .ok()
-                        .filter(|t| t.date_only.is_none())
-                        .ok_or_else(|| {
-                            whole(422, IssueCode::Value, format!("Parameters.parameter[{i}].valueDateTime"), "The 'now' part must be a dateTime with a time and an offset.")
+                    let parsed =
+                        datetime::parse_date_time(text).ok().filter(|t| t.date_only.is_none()).ok_or_else(|| {
+                            whole(
+                                422,
+                                IssueCode::Value,
+                                format!("Parameters.parameter[{i}].valueDateTime"),
+                                "The 'now' part must be a dateTime with a time and an offset.",
+                            )
                         })?;
                     if !now_fixed {
                         now = parsed.when.latest;
@@ -148,16 +164,40 @@ pub fn read_value(
             }
             let found = params.iter().enumerate().find(|(_, p)| str_at(p, "name") == Some("bundle"));
             let Some((i, part)) = found else {
-                return Err(whole(422, IssueCode::Required, "Parameters.parameter", "No part named 'bundle': the Parameters wrapper must carry the patient's Bundle in a part named 'bundle'."));
+                return Err(whole(
+                    422,
+                    IssueCode::Required,
+                    "Parameters.parameter",
+                    "No part named 'bundle': the Parameters wrapper must carry the patient's Bundle in a part named 'bundle'.",
+                ));
             };
             let Some(res) = part.get("resource").filter(|r| str_at(r, "resourceType") == Some("Bundle")) else {
-                return Err(whole(422, IssueCode::Structure, format!("Parameters.parameter[{i}].resource"), "The 'bundle' part must hold a Bundle resource."));
+                return Err(whole(
+                    422,
+                    IssueCode::Structure,
+                    format!("Parameters.parameter[{i}].resource"),
+                    "The 'bundle' part must hold a Bundle resource.",
+                ));
             };
             (res, format!("Parameters.parameter[{i}].resource"))
         }
-        "" => return Err(whole(422, IssueCode::Structure, "resourceType", "The body has no resourceType; a FHIR Bundle or Parameters resource is expected.")),
+        "" => {
+            return Err(whole(
+                422,
+                IssueCode::Structure,
+                "resourceType",
+                "The body has no resourceType; a FHIR Bundle or Parameters resource is expected.",
+            ));
+        }
         other => {
-            return Err(whole(422, IssueCode::NotSupported, "resourceType", format!("resourceType '{other}' is not accepted here; send a Bundle (or a Parameters resource with a 'bundle' part).")))
+            return Err(whole(
+                422,
+                IssueCode::NotSupported,
+                "resourceType",
+                format!(
+                    "resourceType '{other}' is not accepted here; send a Bundle (or a Parameters resource with a 'bundle' part)."
+                ),
+            ));
         }
     };
     let mut reader = Reader { rules, profiles, prefix, set_aside: Vec::new(), now };
@@ -184,7 +224,14 @@ impl<'a> Reader<'a> {
         self.push(e, "", reason, IssueSeverityLevel::Information, IssueCode::Informational);
     }
 
-    fn push(&mut self, e: &Entry<'_>, path: &str, reason: impl Into<String>, severity: IssueSeverityLevel, code: IssueCode) {
+    fn push(
+        &mut self,
+        e: &Entry<'_>,
+        path: &str,
+        reason: impl Into<String>,
+        severity: IssueSeverityLevel,
+        code: IssueCode,
+    ) {
         let expression = format!("{}{path}", self.at(e.index));
         let resource = e.reference().unwrap_or_else(|| self.at(e.index));
         self.set_aside.push(SetAside { expression, resource, reason: reason.into(), severity, code });
@@ -209,7 +256,12 @@ impl<'a> Reader<'a> {
         }
         let kind = str_at(bundle, "type").unwrap_or("");
         if !ACCEPTED_BUNDLE_TYPES.contains(&kind) {
-            return Err(whole(422, IssueCode::NotSupported, format!("{p}.type"), format!("Bundle.type '{kind}' is not accepted; use one of {}.", ACCEPTED_BUNDLE_TYPES.join(", "))));
+            return Err(whole(
+                422,
+                IssueCode::NotSupported,
+                format!("{p}.type"),
+                format!("Bundle.type '{kind}' is not accepted; use one of {}.", ACCEPTED_BUNDLE_TYPES.join(", ")),
+            ));
         }
         let raw = bundle.get("entry").and_then(Value::as_array).map(Vec::as_slice).unwrap_or_default();
         let mut entries = Vec::new();
@@ -243,7 +295,13 @@ impl<'a> Reader<'a> {
                     .filter(|er| entry_index(&er.path) == Some(index))
                     .map(|er| format!("{}{}: {}", p, er.path, er.message))
                     .collect();
-                self.push(&e, "", format!("entry breaks the Bundle rules: {}", msgs.join("; ")), IssueSeverityLevel::Warning, IssueCode::Structure);
+                self.push(
+                    &e,
+                    "",
+                    format!("entry breaks the Bundle rules: {}", msgs.join("; ")),
+                    IssueSeverityLevel::Warning,
+                    IssueCode::Structure,
+                );
                 continue;
             }
             if str_at(entry.get("search").unwrap_or(&Value::Null), "mode") == Some("outcome") {
@@ -258,7 +316,14 @@ impl<'a> Reader<'a> {
         // The one patient.
         let patients: Vec<&Entry<'_>> = entries.iter().filter(|e| e.resource_type == "Patient").collect();
         let patient = match patients.as_slice() {
-            [] => return Err(whole(422, IssueCode::Required, format!("{p}.entry"), "The Bundle holds no Patient; the assessment needs the patient's Patient resource (for the birth date).")),
+            [] => {
+                return Err(whole(
+                    422,
+                    IssueCode::Required,
+                    format!("{p}.entry"),
+                    "The Bundle holds no Patient; the assessment needs the patient's Patient resource (for the birth date).",
+                ));
+            }
             [one] => *one,
             [first, second, ..] => {
                 return Err(RequestError {
@@ -268,7 +333,7 @@ impl<'a> Reader<'a> {
                         vec![self.at(first.index), self.at(second.index)],
                         "The Bundle holds more than one Patient; an assessment is for one patient only.",
                     )],
-                })
+                });
             }
         };
         let patient_index = patient.index;
@@ -277,6 +342,7 @@ impl<'a> Reader<'a> {
 
         let mut measurements = Vec::new();
         let mut symptoms = Vec::new();
+        let mut events = Vec::new();
         let mut gestation = None;
         for e in &entries {
             if e.index == patient_index {
@@ -284,7 +350,13 @@ impl<'a> Reader<'a> {
             }
             match e.resource_type {
                 "Observation" => self.observation(e, &index, patient, &mut measurements, &mut symptoms),
-                "Condition" => self.condition(e, &index, patient, &mut symptoms),
+                "Condition" => self.condition(e, &index, patient, &mut symptoms, &mut events),
+                "MedicationRequest" | "MedicationStatement" | "MedicationAdministration" => {
+                    self.medication(e, &index, patient, &entries, &mut events)
+                }
+                "Procedure" => self.procedure(e, &index, patient, &mut events),
+                "Medication" => self
+                    .ignore(e, "Medication resources are read only through the medication records that refer to them"),
                 other => self.ignore(e, format!("resource type {other} is not read by this version of the rules")),
             }
         }
@@ -302,6 +374,7 @@ impl<'a> Reader<'a> {
                 patient: patient_facts,
                 measurements,
                 symptoms,
+                events,
                 gestational_age_weeks: gestation,
                 now: self.now,
             },
@@ -321,7 +394,10 @@ impl<'a> Reader<'a> {
                         status: 422,
                         issues: vec![Issue::error(
                             IssueCode::Duplicate,
-                            vec![format!("{p}.entry[{}].fullUrl", entries[first].index), format!("{p}.entry[{}].fullUrl", e.index)],
+                            vec![
+                                format!("{p}.entry[{}].fullUrl", entries[first].index),
+                                format!("{p}.entry[{}].fullUrl", e.index),
+                            ],
                             "Two entries share one fullUrl (FHIR rule bdl-7); references to it are ambiguous.",
                         )],
                     });
@@ -338,8 +414,14 @@ impl<'a> Reader<'a> {
                         status: 422,
                         issues: vec![Issue::error(
                             IssueCode::Duplicate,
-                            vec![format!("{p}.entry[{}].resource.id", entries[first].index), format!("{p}.entry[{}].resource.id", e.index)],
-                            format!("Two different {} resources share the id '{id}'; references to it are ambiguous.", e.resource_type),
+                            vec![
+                                format!("{p}.entry[{}].resource.id", entries[first].index),
+                                format!("{p}.entry[{}].resource.id", e.index),
+                            ],
+                            format!(
+                                "Two different {} resources share the id '{id}'; references to it are ambiguous.",
+                                e.resource_type
+                            ),
                         )],
                     });
                 }
@@ -359,7 +441,12 @@ impl<'a> Reader<'a> {
             return Err(RequestError::from_profile(422, &self.at(e.index), &errors));
         }
         if e.resource.get("modifierExtension").is_some() {
-            return Err(whole(422, IssueCode::NotSupported, format!("{}.modifierExtension", self.at(e.index)), "The Patient carries a modifierExtension this service does not understand; FHIR forbids processing it as if the extension were absent."));
+            return Err(whole(
+                422,
+                IssueCode::NotSupported,
+                format!("{}.modifierExtension", self.at(e.index)),
+                "The Patient carries a modifierExtension this service does not understand; FHIR forbids processing it as if the extension were absent.",
+            ));
         }
         let gender = match str_at(e.resource, "gender") {
             Some("male") => Gender::Male,
@@ -386,17 +473,25 @@ impl<'a> Reader<'a> {
         };
         if let Some(reference) = str_at(subject, "reference") {
             if let Some(local) = reference.strip_prefix('#') {
-                let contained = e.resource.get("contained").and_then(Value::as_array).and_then(|c| {
-                    c.iter().find(|r| str_at(r, "id") == Some(local))
-                });
+                let contained = e
+                    .resource
+                    .get("contained")
+                    .and_then(Value::as_array)
+                    .and_then(|c| c.iter().find(|r| str_at(r, "id") == Some(local)));
                 return match contained {
-                    Some(c) if str_at(c, "resourceType") == Some("Patient") && same_identifier(c, patient.resource) => true,
+                    Some(c) if str_at(c, "resourceType") == Some("Patient") && same_identifier(c, patient.resource) => {
+                        true
+                    }
                     Some(_) => {
                         self.aside(e, ".subject", "subject is a contained Patient that does not share an identifier with the bundle's Patient");
                         false
                     }
                     None => {
-                        self.aside(e, ".subject.reference", format!("contained reference '{reference}' does not resolve"));
+                        self.aside(
+                            e,
+                            ".subject.reference",
+                            format!("contained reference '{reference}' does not resolve"),
+                        );
                         false
                     }
                 };
@@ -429,7 +524,8 @@ impl<'a> Reader<'a> {
         let errors = self.profiles.check(kind, e.resource);
         if !errors.is_empty() {
             let path = errors.first().map(|er| er.path.clone()).unwrap_or_default();
-            let msgs: Vec<String> = errors.iter().map(|er| format!("{}{}: {}", self.at(e.index), er.path, er.message)).collect();
+            let msgs: Vec<String> =
+                errors.iter().map(|er| format!("{}{}: {}", self.at(e.index), er.path, er.message)).collect();
             self.aside(e, &path, format!("does not match the {} profile: {}", e.resource_type, msgs.join("; ")));
             return false;
         }
@@ -521,7 +617,11 @@ impl<'a> Reader<'a> {
     ) -> Option<Measurement> {
         let label = code.display.clone();
         if let Some(dar) = holder.get("dataAbsentReason") {
-            self.aside(e, &format!("{at}.dataAbsentReason"), format!("{label}: no value (dataAbsentReason {})", describe_codes(Some(dar))));
+            self.aside(
+                e,
+                &format!("{at}.dataAbsentReason"),
+                format!("{label}: no value (dataAbsentReason {})", describe_codes(Some(dar))),
+            );
             return None;
         }
         let Some(q) = holder.get("valueQuantity") else {
@@ -534,7 +634,11 @@ impl<'a> Reader<'a> {
         };
         let qpath = format!("{at}.valueQuantity");
         if let Some(c) = str_at(q, "comparator") {
-            self.aside(e, &format!("{qpath}.comparator"), format!("{label}: value has comparator '{c}'; a censored value is not used as a number"));
+            self.aside(
+                e,
+                &format!("{qpath}.comparator"),
+                format!("{label}: value has comparator '{c}'; a censored value is not used as a number"),
+            );
             return None;
         }
         let Some(value) = q.get("value").and_then(Value::as_f64) else {
@@ -544,16 +648,25 @@ impl<'a> Reader<'a> {
         match (str_at(q, "system"), str_at(q, "code")) {
             (Some(UCUM), Some(_)) => {}
             (Some(other), _) if other != UCUM => {
-                self.aside(e, &format!("{qpath}.system"), format!("{label}: unit system '{other}' is not UCUM ({UCUM})"));
+                self.aside(
+                    e,
+                    &format!("{qpath}.system"),
+                    format!("{label}: unit system '{other}' is not UCUM ({UCUM})"),
+                );
                 return None;
             }
             (_, None) => {
-                let shown = str_at(q, "unit").map(|u| format!(" (unit text '{u}' alone is not trusted)")).unwrap_or_default();
+                let shown =
+                    str_at(q, "unit").map(|u| format!(" (unit text '{u}' alone is not trusted)")).unwrap_or_default();
                 self.aside(e, &format!("{qpath}.code"), format!("{label}: no UCUM unit code{shown}"));
                 return None;
             }
             (None, Some(_)) => {
-                self.aside(e, &format!("{qpath}.system"), format!("{label}: unit has a code but no system; UCUM ({UCUM}) is required"));
+                self.aside(
+                    e,
+                    &format!("{qpath}.system"),
+                    format!("{label}: unit has a code but no system; UCUM ({UCUM}) is required"),
+                );
                 return None;
             }
             _ => {}
@@ -653,58 +766,17 @@ impl<'a> Reader<'a> {
         }
         let skew = (self.rules.windows.clock_skew_minutes * 60.0).round() as i64;
         if when.earliest > self.now + skew {
-            self.aside(e, path, format!("effective time {text} is in the future (evaluation time {})", datetime::format_instant(self.now)));
+            self.aside(
+                e,
+                path,
+                format!(
+                    "effective time {text} is in the future (evaluation time {})",
+                    datetime::format_instant(self.now)
+                ),
+            );
             return None;
         }
         Some((when, text))
-    }
-
-    fn condition(&mut self, e: &Entry<'_>, index: &Index<'_>, patient: &Entry<'_>, symptoms: &mut Vec<SymptomFinding>) {
-        if !self.common_checks(e, Kind::Condition) {
-            return;
-        }
-        let r = e.resource;
-        let Some(code) = self.symptom_code(r.get("code")) else {
-            self.ignore(e, format!("code {} is not a symptom the rules read", describe_codes(r.get("code"))));
-            return;
-        };
-        let verification = first_code(r.get("verificationStatus"));
-        if matches!(verification, Some("entered-in-error" | "refuted")) {
-            self.aside(e, ".verificationStatus", format!("verification status '{}'", verification.unwrap_or("")));
-            return;
-        }
-        let clinical = first_code(r.get("clinicalStatus"));
-        if !matches!(clinical, Some("active" | "recurrence" | "relapse")) {
-            self.ignore(e, format!("clinical status '{}': not active", clinical.unwrap_or("missing")));
-            return;
-        }
-        if !self.subject_ok(e, index, patient) {
-            return;
-        }
-        let (when, when_text) = match str_at(r, "onsetDateTime").or_else(|| str_at(r, "recordedDate")) {
-            Some(t) => match datetime::parse_date_time(t) {
-                Ok(d) => (Some(d.when), Some(t.to_owned())),
-                Err(err) => {
-                    self.aside(e, ".onsetDateTime", format!("onset time not usable: {err}"));
-                    return;
-                }
-            },
-            None => (None, None),
-        };
-        if let Some(w) = when {
-            let skew = (self.rules.windows.clock_skew_minutes * 60.0).round() as i64;
-            if w.earliest > self.now + skew {
-                self.aside(e, ".onsetDateTime", "onset is in the future");
-                return;
-            }
-        }
-        symptoms.push(SymptomFinding {
-            symptom: code.symptom,
-            when,
-            when_text,
-            code: Code { system: code.system.clone(), code: code.code.clone(), display: code.display.clone() },
-            source: self.source(e, ""),
-        });
     }
 
     fn lab_code(&self, concept: Option<&Value>) -> Option<&'a ObservationCode> {
@@ -714,9 +786,8 @@ impl<'a> Reader<'a> {
     }
 
     fn symptom_code(&self, concept: Option<&Value>) -> Option<&'a SymptomCode> {
-        codings(concept).find_map(|(system, code)| {
-            self.rules.symptom_codes.iter().find(|c| c.system == system && c.code == code)
-        })
+        codings(concept)
+            .find_map(|(system, code)| self.rules.symptom_codes.iter().find(|c| c.system == system && c.code == code))
     }
 }
 

@@ -16,6 +16,7 @@ use super::read::{Ingested, UCUM};
 use crate::clinical::facts::{Analyte, Source};
 use crate::clinical::format::{num, value_with_mg_dl};
 use crate::clinical::status::{Assessment, CalciumFinding, Classification, DerivedAdjusted, GuidanceStatus};
+use crate::clinical::workup::Workup;
 use crate::rules::LoadedRules;
 
 /// v3 ObservationInterpretation.
@@ -41,7 +42,8 @@ pub struct OutputContext<'a> {
 }
 
 impl OutputContext<'_> {
-    fn uuid(&self, kind: &str) -> String {
+    /// A deterministic UUID for one output resource.
+    pub fn uuid(&self, kind: &str) -> String {
         let mut h = Sha256::new();
         h.update(self.request_digest);
         h.update(self.now.to_be_bytes());
@@ -51,7 +53,13 @@ impl OutputContext<'_> {
         let hex: String = d.iter().take(16).map(|b| format!("{b:02x}")).collect();
         // Shape it as a UUID (version nibble 5, RFC 4122 variant) so that
         // urn:uuid fullUrls are well formed.
-        let hex = format!("{}5{}{:x}{}", &hex[..12], &hex[13..16], (u8::from_str_radix(&hex[16..17], 16).unwrap_or(0) & 0x3) | 0x8, &hex[17..]);
+        let hex = format!(
+            "{}5{}{:x}{}",
+            &hex[..12],
+            &hex[13..16],
+            (u8::from_str_radix(&hex[16..17], 16).unwrap_or(0) & 0x3) | 0x8,
+            &hex[17..]
+        );
         format!("{}-{}-{}-{}-{}", &hex[..8], &hex[8..12], &hex[12..16], &hex[16..20], &hex[20..32])
     }
 }
@@ -62,10 +70,13 @@ pub fn request_digest(doc: &Value) -> [u8; 32] {
     Sha256::digest(bytes).into()
 }
 
-fn reference(source: &Source) -> Value {
+/// A Reference to an input resource.
+pub fn reference(source: &Source) -> Value {
     match &source.reference {
         Some(r) => json!({ "reference": r, "type": source.resource_type }),
-        None => json!({ "type": source.resource_type, "display": format!("{} (no id in the request)", source.expression) }),
+        None => {
+            json!({ "type": source.resource_type, "display": format!("{} (no id in the request)", source.expression) })
+        }
     }
 }
 
@@ -96,7 +107,7 @@ fn effective(text: &str) -> (&'static str, Value) {
 }
 
 /// Build the result Bundle.
-pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessment) -> Value {
+pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessment, workup: Option<&Workup>) -> Value {
     let now = format_instant(ctx.now);
     let rules = &ctx.rules.rules;
     let id = |k: &str| ctx.uuid(k);
@@ -144,6 +155,16 @@ pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessmen
         entries.push(json!({ "fullUrl": urn("hypocalcemia"), "resource": issue }));
     }
 
+    // Work-up: causes and next tests.
+    let wo = match (workup, low) {
+        (Some(w), Some(f)) => Some(super::write_workup::workup_output(ctx, &subject, &device, &now, f, w)),
+        _ => None,
+    };
+    if let Some(wo) = &wo {
+        entries.extend(wo.entries.iter().cloned());
+        targets.extend(wo.targets.iter().cloned());
+    }
+
     // OperationOutcome of everything not used.
     let mut issues: Vec<Issue> = ingested
         .set_aside
@@ -183,6 +204,11 @@ pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessmen
     for n in &a.data_needs {
         notes.push(json!({ "text": format!("Data needed ({}): {}", analyte_label(ctx, n.analyte), n.reason) }));
     }
+    if let Some(wo) = &wo {
+        for n in &wo.notes {
+            notes.push(json!({ "text": format!("Work-up: {n}") }));
+        }
+    }
     notes.push(json!({ "text": rules.texts.advisory }));
     notes.push(json!({ "text": format!("Rule set: {}.", ctx.rules.label()) }));
     let mut gr = json!({
@@ -199,7 +225,16 @@ pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessmen
     if let Some(b) = &ingested.bundle_id {
         gr["requestIdentifier"] = json!({ "value": b });
     }
-    let requirements = data_requirements(ctx, a);
+    let mut requirements = data_requirements(ctx, a);
+    if let Some(wo) = &wo {
+        requirements.extend(wo.data_requirements.iter().cloned());
+        if let Some(r) = &wo.result {
+            gr["result"] = r.clone();
+        }
+        if let Some(p) = &wo.output_parameters {
+            gr["outputParameters"] = p.clone();
+        }
+    }
     if !requirements.is_empty() {
         gr["dataRequirement"] = json!(requirements);
     }
@@ -264,7 +299,10 @@ fn summary(ctx: &OutputContext<'_>, a: &Assessment) -> String {
             match f.classification {
                 Classification::Low => format!(
                     "Hypocalcemia{}{}: {} {} against the {} interval {}-{} mmol/L.",
-                    f.grade.as_ref().map(|g| format!(", {} grade", g.grade)).unwrap_or_else(|| ", below the reference interval".into()),
+                    f.grade
+                        .as_ref()
+                        .map(|g| format!(", {} grade", g.grade))
+                        .unwrap_or_else(|| ", below the reference interval".into()),
                     if f.is_symptomatic() { ", symptomatic" } else { "" },
                     f.measure.label(),
                     shown,
@@ -332,7 +370,13 @@ fn capital(s: &str) -> String {
     c.next().map(|f| f.to_uppercase().collect::<String>() + c.as_str()).unwrap_or_default()
 }
 
-fn derived_observation(ctx: &OutputContext<'_>, d: &DerivedAdjusted, subject: &Value, device: &Value, now: &str) -> Value {
+fn derived_observation(
+    ctx: &OutputContext<'_>,
+    d: &DerivedAdjusted,
+    subject: &Value,
+    device: &Value,
+    now: &str,
+) -> Value {
     let code = &ctx.rules.rules.output_codes.adjusted_calcium;
     let (interp_code, interp_display) = d.classification.interpretation(d.severe);
     let (eff_key, eff_value) = effective(&d.effective_text);

@@ -177,12 +177,20 @@ fn consistency(rules: &RuleSet) -> Result<(), RuleError> {
             problems.push(format!("  observation_codes: {} {} is listed twice", c.system, c.code));
         }
         if rules.analyte(c.analyte).is_none() {
-            problems.push(format!("  observation_codes: {} maps to analyte {} which has no [analytes] entry", c.code, c.analyte.key()));
+            problems.push(format!(
+                "  observation_codes: {} maps to analyte {} which has no [analytes] entry",
+                c.code,
+                c.analyte.key()
+            ));
         }
     }
     for (key, a) in &rules.analytes {
         if crate::clinical::units::lookup(&a.canonical_unit).is_none() {
-            problems.push(format!("  analytes.{}: canonical unit '{}' is not an accepted UCUM code", key.key(), a.canonical_unit));
+            problems.push(format!(
+                "  analytes.{}: canonical unit '{}' is not an accepted UCUM code",
+                key.key(),
+                a.canonical_unit
+            ));
         }
         if a.plausible.min > a.plausible.max {
             problems.push(format!("  analytes.{}: plausible min above max", key.key()));

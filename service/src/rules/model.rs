@@ -40,6 +40,417 @@ pub struct RuleSet {
     pub output_codes: OutputCodes,
     /// Fixed texts shown in every output.
     pub texts: Texts,
+    /// Age- and sex-specific reference intervals for the cause engine.
+    #[serde(default)]
+    pub lab_ranges: Vec<LabRange>,
+    /// 25-OH vitamin D cut-offs, one set chosen by the site.
+    #[serde(default)]
+    pub vitamin_d_25oh_cutoffs: Choice<VitaminDCutoffs>,
+    /// Which published urine Ca/Cr limits the ranges use, and the others.
+    #[serde(default)]
+    pub urine_calcium_creatinine_limits: UrineLimits,
+    /// Blood pH above which alkalosis is called.
+    #[serde(default)]
+    pub alkalosis: Alkalosis,
+    /// Bedside Schwartz eGFR.
+    #[serde(default)]
+    pub egfr: Egfr,
+    /// Code lists for conditions, medications and procedures.
+    #[serde(default)]
+    pub code_lists: Vec<CodeList>,
+    /// How findings are weighed into labels.
+    #[serde(default)]
+    pub cause_weighing: Weighing,
+    /// The causes and their findings.
+    #[serde(default)]
+    pub causes: Vec<Cause>,
+    /// Tests the planner may propose.
+    #[serde(default)]
+    pub next_tests: Vec<NextTest>,
+    /// Planner settings.
+    #[serde(default)]
+    pub planner: PlannerRules,
+}
+
+/// Sex restriction of a range.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum SexRestriction {
+    /// Any sex.
+    Any,
+    /// Male only.
+    Male,
+    /// Female only.
+    Female,
+}
+
+/// One age-banded reference interval of an analyte, in its canonical unit.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LabRange {
+    /// Analyte.
+    pub analyte: Analyte,
+    /// Sex.
+    pub sex: SexRestriction,
+    /// Inclusive lower age bound.
+    pub from: AgeBound,
+    /// Exclusive upper age bound.
+    pub until: AgeBound,
+    /// Lower limit.
+    pub lower: f64,
+    /// Upper limit.
+    pub upper: f64,
+    /// Unit (must be the analyte's canonical unit).
+    pub unit: String,
+    /// Source.
+    pub source: String,
+    /// seen | seen-2nd | derived | memory.
+    pub confidence: String,
+    /// Disagreements, conversions.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// A set of options of which the site picks one.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Choice<T> {
+    /// Id of the option in force.
+    pub default: String,
+    /// The options.
+    pub options: Vec<T>,
+}
+
+impl<T: HasId> Choice<T> {
+    /// The option in force (the loader checks that it exists).
+    pub fn chosen(&self) -> Option<&T> {
+        self.options.iter().find(|o| o.id() == self.default)
+    }
+}
+
+/// Something with an id.
+pub trait HasId {
+    /// The id.
+    fn id(&self) -> &str;
+}
+
+/// 25-OH vitamin D cut-offs, nmol/L.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct VitaminDCutoffs {
+    /// Id.
+    pub id: String,
+    /// Deficient below.
+    pub deficient_below: f64,
+    /// Insufficient below.
+    pub insufficient_below: f64,
+    /// Source.
+    pub source: String,
+    /// Confidence.
+    pub confidence: String,
+}
+
+impl HasId for VitaminDCutoffs {
+    fn id(&self) -> &str {
+        &self.id
+    }
+}
+
+/// Urine Ca/Cr limit sets.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct UrineLimits {
+    /// The set the ranges use.
+    pub default: String,
+    /// The other published sets, as text.
+    pub alternatives: String,
+}
+
+/// Alkalosis threshold.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Alkalosis {
+    /// pH above which alkalosis is called.
+    pub ph_above: f64,
+    /// Source.
+    pub source: String,
+    /// Confidence.
+    pub confidence: String,
+}
+
+/// Bedside Schwartz eGFR parameters.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Egfr {
+    /// k for creatinine in mg/dL.
+    pub k_mg_dl: f64,
+    /// k for creatinine in umol/L.
+    pub k_umol_l: f64,
+    /// Source.
+    pub source: String,
+    /// Confidence.
+    pub confidence: String,
+    /// Validated from this age.
+    pub valid_from: AgeBound,
+    /// Validated until this age.
+    pub valid_until: AgeBound,
+    /// Reduced below (mL/min/1.73 m2).
+    pub reduced_below: f64,
+    /// Impaired below (mL/min/1.73 m2).
+    pub impaired_below: f64,
+    /// Source of the thresholds.
+    pub threshold_source: String,
+    /// A height older than this (days) is not used for the eGFR.
+    pub height_max_age_days: f64,
+}
+
+/// What a code list holds.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum CodeListKind {
+    /// Conditions.
+    Condition,
+    /// Medications.
+    Medication,
+    /// Procedures.
+    Procedure,
+}
+
+/// A code in a list.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ListedCode {
+    /// System.
+    pub system: String,
+    /// Code.
+    pub code: String,
+    /// Display.
+    pub display: String,
+    /// Where verified.
+    pub source: String,
+    /// Caution.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// A named code list.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CodeList {
+    /// Id.
+    pub id: String,
+    /// Kind.
+    pub kind: CodeListKind,
+    /// Label.
+    pub label: String,
+    /// Conditions of this list count whatever their clinicalStatus (birth
+    /// history and lifelong conditions that are never "active" problems).
+    #[serde(default)]
+    pub any_status: bool,
+    /// Codes.
+    pub codes: Vec<ListedCode>,
+}
+
+/// Outcome of a lab against its range.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum LabOutcome {
+    /// Below the range.
+    Low,
+    /// Within.
+    Normal,
+    /// Above.
+    High,
+    /// Low or normal (e.g. an inappropriately normal PTH).
+    LowOrNormal,
+    /// Normal or high.
+    NormalOrHigh,
+}
+
+impl LabOutcome {
+    /// Does an observed outcome (low, normal or high) satisfy this one?
+    pub fn matches(self, observed: LabOutcome) -> bool {
+        match self {
+            Self::LowOrNormal => matches!(observed, Self::Low | Self::Normal),
+            Self::NormalOrHigh => matches!(observed, Self::Normal | Self::High),
+            other => other == observed,
+        }
+    }
+    /// Word for text.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Low => "low",
+            Self::Normal => "normal",
+            Self::High => "high",
+            Self::LowOrNormal => "low or normal",
+            Self::NormalOrHigh => "normal or high",
+        }
+    }
+}
+
+/// How much a finding counts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Effect {
+    /// Strongly for.
+    StrongFor,
+    /// For.
+    For,
+    /// Against.
+    Against,
+    /// Strongly against.
+    StrongAgainst,
+    /// Excludes the cause.
+    RulesOut,
+}
+
+/// Age span of a finding or a cause.
+#[derive(Debug, Clone, Copy, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AgeSpan {
+    /// Inclusive.
+    pub from: AgeBound,
+    /// Exclusive.
+    pub until: AgeBound,
+}
+
+/// One finding of a cause. Exactly one of `lab`, `egfr`, `condition`,
+/// `medication`, `procedure`, `age` is set (checked by the loader).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CauseFinding {
+    /// A lab analyte, with `is`.
+    #[serde(default)]
+    pub lab: Option<Analyte>,
+    /// The eGFR (bedside Schwartz), with `is`.
+    #[serde(default)]
+    pub egfr: bool,
+    /// The outcome the lab must have.
+    #[serde(default)]
+    pub is: Option<LabOutcome>,
+    /// A condition code list id.
+    #[serde(default)]
+    pub condition: Option<String>,
+    /// A medication code list id.
+    #[serde(default)]
+    pub medication: Option<String>,
+    /// A procedure code list id.
+    #[serde(default)]
+    pub procedure: Option<String>,
+    /// Only events within this many days before the calcium result count.
+    #[serde(default)]
+    pub within_days: Option<f64>,
+    /// An age span.
+    #[serde(default)]
+    pub age: Option<AgeSpan>,
+    /// Effect.
+    pub effect: Effect,
+    /// Why (source).
+    pub source: String,
+}
+
+/// One cause.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Cause {
+    /// Id.
+    pub id: String,
+    /// Label.
+    pub label: String,
+    /// Code list whose first SNOMED CT code names the cause in
+    /// ClinicalImpression.finding (text only when there is none).
+    #[serde(default)]
+    pub code_from_list: Option<String>,
+    /// Labelled unlikely when none of its positive findings is met (for causes
+    /// that need an exposure or a finding to be considered at all).
+    #[serde(default)]
+    pub needs_positive_finding: bool,
+    /// Ages the cause applies to; outside it is ruled out.
+    #[serde(default)]
+    pub applies: Option<AgeSpan>,
+    /// Source of the cause's findings as a whole.
+    pub source: String,
+    /// Findings.
+    pub findings: Vec<CauseFinding>,
+}
+
+/// Weighing of findings into labels.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Weighing {
+    /// Points for strong_for.
+    pub strong_for: i32,
+    /// Points for for.
+    pub r#for: i32,
+    /// Points for against.
+    pub against: i32,
+    /// Points for strong_against.
+    pub strong_against: i32,
+    /// Likely at or above this score...
+    pub likely_at_least: i32,
+    /// ...and only with a strong_for finding met.
+    pub likely_needs_strong_finding: bool,
+    /// Unlikely at or below this score.
+    pub unlikely_at_most: i32,
+    /// Source / rationale.
+    pub source: String,
+}
+
+/// A test the planner may propose.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NextTest {
+    /// What it measures.
+    pub analyte: Analyte,
+    /// What to order, in words.
+    pub label: String,
+    /// Order code (LOINC), when a verified one exists.
+    #[serde(default)]
+    pub code: Option<OutputCoding>,
+    /// The results the planner tries (default low, normal, high).
+    #[serde(default = "three_outcomes")]
+    pub outcomes: Vec<LabOutcome>,
+    /// Burden weight (1 = a basic chemistry on the same sample).
+    pub burden: f64,
+    /// Burden in the first 28 days of life (blood volume matters more).
+    pub neonatal_burden: f64,
+    /// Rationale of the burden.
+    pub burden_source: String,
+    /// A result older than this (hours) is not read by the work-up.
+    pub max_age_hours: f64,
+    /// Do not propose while this lab has this outcome.
+    #[serde(default)]
+    pub deferred_when: Option<Deferral>,
+}
+
+fn three_outcomes() -> Vec<LabOutcome> {
+    vec![LabOutcome::Low, LabOutcome::Normal, LabOutcome::High]
+}
+
+/// A reason to hold a test back.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Deferral {
+    /// The lab.
+    pub lab: Analyte,
+    /// Its outcome.
+    pub is: LabOutcome,
+    /// Why.
+    pub reason: String,
+}
+
+/// Planner settings.
+#[derive(Debug, Clone, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PlannerRules {
+    /// At most this many proposals.
+    pub max_proposals: usize,
+    /// Weight of a likely cause in the open weight.
+    pub likely_weight: f64,
+    /// Weight of a possible cause.
+    pub possible_weight: f64,
+    /// Rationale.
+    pub source: String,
 }
 
 /// Fixed texts.
@@ -172,9 +583,10 @@ pub struct SeverityRules {
 }
 
 /// Unit of an age bound.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Deserialize)]
 pub enum AgeUnit {
     /// Completed days.
+    #[default]
     #[serde(rename = "d")]
     Days,
     /// Completed calendar months.
@@ -186,7 +598,7 @@ pub enum AgeUnit {
 }
 
 /// An age bound.
-#[derive(Debug, Clone, Copy, Deserialize)]
+#[derive(Debug, Clone, Copy, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct AgeBound {
     /// Number of units.

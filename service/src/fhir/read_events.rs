@@ -1,0 +1,233 @@
+//! Reading Conditions, medication records and Procedures into coded events
+//! (and symptom findings), matched to the rule set's code lists.
+
+use serde_json::Value;
+
+use super::{Entry, Index, Reader, codings, describe_codes, first_code, str_at};
+use crate::clinical::facts::{Code, CodedEvent, EventKind, SymptomFinding};
+use crate::clinical::time::When;
+use crate::fhir::datetime;
+use crate::fhir::profiles::Kind;
+use crate::rules::model::CodeListKind;
+
+impl<'a> Reader<'a> {
+    /// Code lists of `kind` that hold one of the concept's codings, with the matching code.
+    fn lists_for(&self, kind: CodeListKind, concept: Option<&Value>) -> (Vec<String>, Option<Code>, bool) {
+        let mut ids = Vec::new();
+        let mut hit = None;
+        let mut any_status = false;
+        for (system, code) in codings(concept) {
+            for list in self.rules.code_lists.iter().filter(|l| l.kind == kind) {
+                if let Some(c) = list.codes.iter().find(|c| c.system == system && c.code == code) {
+                    if !ids.contains(&list.id) {
+                        ids.push(list.id.clone());
+                    }
+                    any_status |= list.any_status;
+                    hit.get_or_insert_with(|| Code {
+                        system: c.system.clone(),
+                        code: c.code.clone(),
+                        display: c.display.clone(),
+                    });
+                }
+            }
+        }
+        (ids, hit, any_status)
+    }
+
+    /// A dateTime element, checked; `Err(())` after setting the resource aside.
+    fn time_of(&mut self, e: &Entry<'_>, path: &str, text: Option<&str>) -> Result<Option<(When, String)>, ()> {
+        let Some(t) = text else { return Ok(None) };
+        match datetime::parse_date_time(t) {
+            Ok(d) => {
+                let skew = (self.rules.windows.clock_skew_minutes * 60.0).round() as i64;
+                if d.when.earliest > self.now + skew {
+                    self.aside(e, path, format!("{t} is in the future"));
+                    return Err(());
+                }
+                Ok(Some((d.when, t.to_owned())))
+            }
+            Err(err) => {
+                self.aside(e, path, format!("time not usable: {err}"));
+                Err(())
+            }
+        }
+    }
+
+    fn period_start(r: &Value, key: &str) -> Option<String> {
+        r.get(key).and_then(|p| str_at(p, "start").or_else(|| str_at(p, "end"))).map(str::to_owned)
+    }
+
+    pub(super) fn condition(
+        &mut self,
+        e: &Entry<'_>,
+        index: &Index<'_>,
+        patient: &Entry<'_>,
+        symptoms: &mut Vec<SymptomFinding>,
+        events: &mut Vec<CodedEvent>,
+    ) {
+        if !self.common_checks(e, Kind::Condition) {
+            return;
+        }
+        let r = e.resource;
+        let symptom = self.symptom_code(r.get("code"));
+        let (lists, listed_code, any_status) = self.lists_for(CodeListKind::Condition, r.get("code"));
+        if symptom.is_none() && lists.is_empty() {
+            self.ignore(
+                e,
+                format!("code {} is not a symptom or a condition the rules read", describe_codes(r.get("code"))),
+            );
+            return;
+        }
+        let verification = first_code(r.get("verificationStatus"));
+        if matches!(verification, Some("entered-in-error" | "refuted")) {
+            self.aside(e, ".verificationStatus", format!("verification status '{}'", verification.unwrap_or("")));
+            return;
+        }
+        let clinical = first_code(r.get("clinicalStatus"));
+        let active = matches!(clinical, Some("active" | "recurrence" | "relapse"));
+        if !active && (!any_status || lists.is_empty()) {
+            self.ignore(e, format!("clinical status '{}': not active", clinical.unwrap_or("missing")));
+            return;
+        }
+        if !self.subject_ok(e, index, patient) {
+            return;
+        }
+        let onset = str_at(r, "onsetDateTime").or_else(|| str_at(r, "recordedDate"));
+        let Ok(when) = self.time_of(e, ".onsetDateTime", onset) else { return };
+        let (when, when_text) = when.map_or((None, None), |(w, t)| (Some(w), Some(t)));
+        if let (Some(s), true) = (symptom, active) {
+            symptoms.push(SymptomFinding {
+                symptom: s.symptom,
+                when,
+                when_text: when_text.clone(),
+                code: Code { system: s.system.clone(), code: s.code.clone(), display: s.display.clone() },
+                source: self.source(e, ""),
+            });
+        }
+        if let Some(code) = listed_code {
+            events.push(CodedEvent {
+                kind: EventKind::Condition,
+                lists,
+                when,
+                when_text,
+                code,
+                source: self.source(e, ""),
+            });
+        }
+    }
+
+    pub(super) fn medication(
+        &mut self,
+        e: &Entry<'_>,
+        index: &Index<'_>,
+        patient: &Entry<'_>,
+        entries: &[Entry<'_>],
+        events: &mut Vec<CodedEvent>,
+    ) {
+        let kind = match e.resource_type {
+            "MedicationRequest" => Kind::MedicationRequest,
+            "MedicationStatement" => Kind::MedicationStatement,
+            _ => Kind::MedicationAdministration,
+        };
+        if !self.common_checks(e, kind) {
+            return;
+        }
+        let r = e.resource;
+        let status = str_at(r, "status").unwrap_or("");
+        let usable = match e.resource_type {
+            "MedicationRequest" => matches!(status, "active" | "on-hold" | "completed"),
+            "MedicationStatement" => matches!(status, "active" | "completed" | "intended"),
+            _ => matches!(status, "completed" | "in-progress"),
+        };
+        // The medication's code: inline, or through a reference to a Medication.
+        let concept = r.get("medicationCodeableConcept").cloned().or_else(|| {
+            let reference = r.get("medicationReference").and_then(|m| str_at(m, "reference"))?;
+            let med = if let Some(local) = reference.strip_prefix('#') {
+                r.get("contained")
+                    .and_then(Value::as_array)
+                    .and_then(|c| c.iter().find(|x| str_at(x, "id") == Some(local)))
+            } else {
+                index
+                    .resolve(reference, e.full_url)
+                    .and_then(|i| entries.iter().find(|x| x.index == i))
+                    .map(|x| x.resource)
+            }?;
+            med.get("code").cloned()
+        });
+        let (lists, code, _) = self.lists_for(CodeListKind::Medication, concept.as_ref());
+        let Some(code) = code else {
+            self.ignore(
+                e,
+                format!("medication {} is not in the rule set's medication lists", describe_codes(concept.as_ref())),
+            );
+            return;
+        };
+        if !usable {
+            self.ignore(e, format!("status '{status}': not a current or recent medication"));
+            return;
+        }
+        if !self.subject_ok(e, index, patient) {
+            return;
+        }
+        let (path, text) = match e.resource_type {
+            "MedicationRequest" => (".authoredOn", str_at(r, "authoredOn").map(str::to_owned)),
+            _ => match str_at(r, "effectiveDateTime") {
+                Some(t) => (".effectiveDateTime", Some(t.to_owned())),
+                None => (".effectivePeriod", Self::period_start(r, "effectivePeriod")),
+            },
+        };
+        let Ok(when) = self.time_of(e, path, text.as_deref()) else { return };
+        let (when, when_text) = when.map_or((None, None), |(w, t)| (Some(w), Some(t)));
+        events.push(CodedEvent {
+            kind: EventKind::Medication,
+            lists,
+            when,
+            when_text,
+            code,
+            source: self.source(e, ""),
+        });
+    }
+
+    pub(super) fn procedure(
+        &mut self,
+        e: &Entry<'_>,
+        index: &Index<'_>,
+        patient: &Entry<'_>,
+        events: &mut Vec<CodedEvent>,
+    ) {
+        if !self.common_checks(e, Kind::Procedure) {
+            return;
+        }
+        let r = e.resource;
+        let (lists, code, _) = self.lists_for(CodeListKind::Procedure, r.get("code"));
+        let Some(code) = code else {
+            self.ignore(
+                e,
+                format!("procedure {} is not in the rule set's procedure lists", describe_codes(r.get("code"))),
+            );
+            return;
+        };
+        let status = str_at(r, "status").unwrap_or("");
+        if !matches!(status, "completed" | "in-progress") {
+            self.ignore(e, format!("status '{status}': not performed"));
+            return;
+        }
+        if !self.subject_ok(e, index, patient) {
+            return;
+        }
+        let (path, text) = match str_at(r, "performedDateTime") {
+            Some(t) => (".performedDateTime", Some(t.to_owned())),
+            None => (".performedPeriod", Self::period_start(r, "performedPeriod")),
+        };
+        let Ok(when) = self.time_of(e, path, text.as_deref()) else { return };
+        let (when, when_text) = when.map_or((None, None), |(w, t)| (Some(w), Some(t)));
+        events.push(CodedEvent {
+            kind: EventKind::Procedure,
+            lists,
+            when,
+            when_text,
+            code,
+            source: self.source(e, ""),
+        });
+    }
+}
