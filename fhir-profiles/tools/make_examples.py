@@ -19,9 +19,19 @@ CODES = {
  "alb": ("1751-7", "Albumin [Mass/volume] in Serum or Plasma"),
  "wt": ("29463-7", "Body weight"),
  "qtc": ("8636-3", "Q-T interval corrected"),
+ "phos": ("2777-1", "Phosphate [Mass/volume] in Serum or Plasma"),
+ "mg": ("19123-9", "Magnesium [Mass/volume] in Serum or Plasma"),
+ "pth": ("2731-8", "Parathyrin.intact [Mass/volume] in Serum or Plasma"),
+ "vitd": ("62292-8", "25-Hydroxyvitamin D2+25-Hydroxyvitamin D3 [Mass/volume] in Serum or Plasma"),
+ "alp": ("6768-6", "Alkaline phosphatase [Enzymatic activity/volume] in Serum or Plasma"),
+ "creat": ("2160-0", "Creatinine [Mass/volume] in Serum or Plasma"),
+ "ht": ("8302-2", "Body height"),
 }
 TEXT = {"ica": "Ionized calcium (whole blood)", "tca_mass": "Calcium, total", "tca_mol": "Calcium, total",
-        "alb": "Albumin", "wt": "Weight", "qtc": "QTc"}
+        "alb": "Albumin", "wt": "Weight", "qtc": "QTc",
+        "phos": "Phosphate (as phosphorus)", "mg": "Magnesium", "pth": "Parathyroid hormone, intact",
+        "vitd": "25-hydroxyvitamin D, total", "alp": "Alkaline phosphatase", "creat": "Creatinine", "ht": "Height"}
+ATC = "http://www.whocc.no/atc"
 
 def u(tag):
     return str(uuid.uuid5(uuid.NAMESPACE_URL, "https://calcium-cds.example.org/examples/" + tag))
@@ -63,6 +73,16 @@ def seizure(cid, subject_ref, onset, recorded):
         "subject": {"reference": subject_ref},
         "onsetDateTime": onset, "recordedDate": recorded})
     return c
+
+def med_request(mid, subject_ref, atc_code, display, text, authored, status="active", intent="order", dosage=None):
+    m = {"resourceType": "MedicationRequest"}
+    if mid: m["id"] = mid
+    m.update({"status": status, "intent": intent,
+              "medicationCodeableConcept": {"coding": [{"system": ATC, "code": atc_code, "display": display}], "text": text},
+              "subject": {"reference": subject_ref},
+              "authoredOn": authored})
+    if dosage: m["dosageInstruction"] = dosage
+    return m
 
 def urn_bundle(bid, btype, ts, resources, ids=False):
     """resources: list of (tag, resource) -> entries with urn:uuid fullUrls.
@@ -172,3 +192,36 @@ write(b + ".json", urn_bundle(b, "collection", "2026-11-30T08:15:00-05:00", [
   ("ica-other-patient", obs(None, "ica", other, d1, "2026-11-30T07:44:00-05:00", 1.18, "mmol/L")),
   ("tca-future", obs(None, "tca_mass", P, "2027-01-10T10:00:00Z", None, 9.2, "mg/dL")),
 ], ids=True))
+
+# 9 ------------------------------------------------------------------
+# Cause work-up: nutritional vitamin D deficiency (low phosphate, high PTH,
+# very low 25-OH vitamin D, high alkaline phosphatase, normal magnesium).
+b = "workup-vitamin-d-deficiency-toddler"; P = ref(b, "patient")
+draw = "2026-11-30T08:00:00-05:00"; chem = "2026-11-30T08:52:00-05:00"; endo = "2026-11-30T09:41:00-05:00"
+write(b + ".json", urn_bundle(b, "collection", "2026-11-30T09:45:00-05:00", [
+  ("patient", patient(None, "LCH-81427063", "Hollingbrook", ["Jasper"], "male", "2024-10-01")),
+  ("ica", obs(None, "ica", P, draw, "2026-11-30T08:09:00-05:00", 0.98, "mmol/L")),
+  ("phosphate", obs(None, "phos", P, draw, chem, 2.9, "mg/dL")),
+  ("magnesium", obs(None, "mg", P, draw, chem, 2.0, "mg/dL")),
+  ("alp", obs(None, "alp", P, draw, chem, 890, "U/L")),
+  ("pth", obs(None, "pth", P, draw, endo, 180, "pg/mL")),
+  ("vitamin-d", obs(None, "vitd", P, draw, endo, 6, "ng/mL")),
+  ("weight", obs(None, "wt", P, draw, None, 11.8, "kg")),
+  ("height", obs(None, "ht", P, draw, None, 84, "cm")),
+]))
+
+# 10 -----------------------------------------------------------------
+# Cause work-up: hypomagnesemia while on a loop diuretic (normal phosphate,
+# normal creatinine for height).
+b = "workup-hypomagnesemia-furosemide"; P = ref(b, "patient")
+draw = "2026-11-30T06:30:00-05:00"; chem = "2026-11-30T07:24:00-05:00"
+write(b + ".json", urn_bundle(b, "collection", "2026-11-30T08:15:00-05:00", [
+  ("patient", patient(None, "LCH-62095318", "Castellow", ["Elowen"], "female", "2015-04-10")),
+  ("ica", obs(None, "ica", P, draw, "2026-11-30T06:41:00-05:00", 0.92, "mmol/L")),
+  ("magnesium", obs(None, "mg", P, draw, chem, 0.9, "mg/dL")),
+  ("phosphate", obs(None, "phos", P, draw, chem, 4.6, "mg/dL")),
+  ("creatinine", obs(None, "creat", P, draw, chem, 0.45, "mg/dL")),
+  ("height", obs(None, "ht", P, "2026-11-25T09:10:00-05:00", None, 138, "cm")),
+  ("furosemide", med_request(None, P, "C03CA01", "furosemide", "Furosemide 1 mg/kg IV twice daily",
+                             "2026-11-25T11:20:00-05:00", dosage=[{"text": "1 mg/kg IV every 12 hours"}])),
+]))

@@ -385,8 +385,11 @@ fn evaluate_one(
         return result;
     }
     let mut strong = false;
+    let mut met_flags = Vec::with_capacity(cause.findings.len());
     for f in &cause.findings {
-        match check(rules, ctx, readings, events, f) {
+        let outcome = check(rules, ctx, readings, events, f);
+        met_flags.push(matches!(outcome, Check::Met(..)));
+        match outcome {
             Check::Met(text, evidence) => {
                 if f.effect == Effect::RulesOut {
                     result.ruled_out_by = Some(format!("{text} ({})", f.source));
@@ -405,7 +408,12 @@ fn evaluate_one(
         }
     }
     let w = &rules.cause_weighing;
-    let positive = result.met.iter().any(|m| matches!(m.effect, Effect::StrongFor | Effect::For));
+    // A cause that needs an exposure opens on a strong finding or on a
+    // recorded condition, medication or procedure, not on a weak lab sign alone.
+    let positive = cause.findings.iter().zip(&met_flags).any(|(f, met)| {
+        *met && (f.effect == Effect::StrongFor
+            || (f.effect == Effect::For && (f.condition.is_some() || f.medication.is_some() || f.procedure.is_some())))
+    });
     result.label = if result.ruled_out_by.is_some() {
         CauseLabel::RuledOut
     } else if cause.needs_positive_finding && !positive {

@@ -13,12 +13,11 @@ const SOURCES: &[(&str, &str)] = &[
     ("patient", include_str!("../../../fhir-profiles/schemas/patient.schema.json")),
     ("observation", include_str!("../../../fhir-profiles/schemas/observation.schema.json")),
     ("condition", include_str!("../../../fhir-profiles/schemas/condition.schema.json")),
+    ("medicationrequest", include_str!("../../../fhir-profiles/schemas/medicationrequest.schema.json")),
+    ("medicationstatement", include_str!("../../../fhir-profiles/schemas/medicationstatement.schema.json")),
+    ("medicationadministration", include_str!("../../../fhir-profiles/schemas/medicationadministration.schema.json")),
+    ("procedure", include_str!("../../../fhir-profiles/schemas/procedure.schema.json")),
 ];
-
-/// Kinds without a profile of our own yet are checked for structure only
-/// (DEVELOPERS.md: profiles).
-const UNPROFILED: &[Kind] =
-    &[Kind::MedicationRequest, Kind::MedicationStatement, Kind::MedicationAdministration, Kind::Procedure];
 
 /// One schema error, located.
 #[derive(Debug, Clone, PartialEq, Eq)]
@@ -37,11 +36,15 @@ pub struct Profiles {
     patient: Validator,
     observation: Validator,
     condition: Validator,
+    medication_request: Validator,
+    medication_statement: Validator,
+    medication_administration: Validator,
+    procedure: Validator,
 }
 
 impl std::fmt::Debug for Profiles {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str("Profiles(bundle, parameters, patient, observation, condition)")
+        f.write_str("Profiles(bundle, parameters, patient, observation, condition, medication records, procedure)")
     }
 }
 
@@ -78,26 +81,36 @@ impl Profiles {
         }
         let mut it = compiled.into_iter();
         let mut next = || it.next().ok_or_else(|| "profile list shorter than expected".to_owned());
-        Ok(Self { bundle: next()?, parameters: next()?, patient: next()?, observation: next()?, condition: next()? })
+        Ok(Self {
+            bundle: next()?,
+            parameters: next()?,
+            patient: next()?,
+            observation: next()?,
+            condition: next()?,
+            medication_request: next()?,
+            medication_statement: next()?,
+            medication_administration: next()?,
+            procedure: next()?,
+        })
     }
 
-    fn get(&self, kind: Kind) -> Option<&Validator> {
+    fn get(&self, kind: Kind) -> &Validator {
         match kind {
-            Kind::Bundle => Some(&self.bundle),
-            Kind::Parameters => Some(&self.parameters),
-            Kind::Patient => Some(&self.patient),
-            Kind::Observation => Some(&self.observation),
-            Kind::Condition => Some(&self.condition),
-            _ => None,
+            Kind::Bundle => &self.bundle,
+            Kind::Parameters => &self.parameters,
+            Kind::Patient => &self.patient,
+            Kind::Observation => &self.observation,
+            Kind::Condition => &self.condition,
+            Kind::MedicationRequest => &self.medication_request,
+            Kind::MedicationStatement => &self.medication_statement,
+            Kind::MedicationAdministration => &self.medication_administration,
+            Kind::Procedure => &self.procedure,
         }
     }
 
     /// Check a resource; the errors, in document order.
     pub fn check(&self, kind: Kind, resource: &Value) -> Vec<ProfileError> {
-        let Some(v) = self.get(kind) else {
-            debug_assert!(UNPROFILED.contains(&kind));
-            return Vec::new();
-        };
+        let v = self.get(kind);
         if v.is_valid(resource) {
             return Vec::new();
         }

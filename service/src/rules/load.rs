@@ -16,12 +16,31 @@ pub const DEFAULT_FILES: &[(&str, &str)] = &[
     ("calcium.toml", include_str!("../../rules/calcium.toml")),
     ("analytes.toml", include_str!("../../rules/analytes.toml")),
     ("codes.toml", include_str!("../../rules/codes.toml")),
+    ("lab-ranges.toml", include_str!("../../rules/lab-ranges.toml")),
+    ("cause-codes.toml", include_str!("../../rules/cause-codes.toml")),
+    ("causes.toml", include_str!("../../rules/causes.toml")),
 ];
 
 /// The JSON Schema every merged rule document must pass.
 pub const RULES_SCHEMA: &str = include_str!("../../../fhir-profiles/schemas/rules.schema.json");
 
-const ADDITIVE_LISTS: &[&str] = &["observation_codes", "symptom_codes"];
+/// Lists where site entries are added to the defaults (an entry with the same
+/// key replaces the default one); the key of each list.
+const ADDITIVE_LISTS: &[(&str, ListKey)] = &[
+    ("observation_codes", ListKey::SystemCode),
+    ("symptom_codes", ListKey::SystemCode),
+    ("code_lists", ListKey::Field("id")),
+    ("causes", ListKey::Field("id")),
+    ("next_tests", ListKey::Field("analyte")),
+    ("unverified", ListKey::None),
+];
+
+#[derive(Clone, Copy)]
+enum ListKey {
+    SystemCode,
+    Field(&'static str),
+    None,
+}
 
 /// Why rules could not be loaded.
 #[derive(Debug, thiserror::Error)]
@@ -68,8 +87,12 @@ fn parse_toml(file: &str, text: &str) -> Result<Value, RuleError> {
     serde_json::to_value(table).map_err(|e| RuleError::Syntax { file: file.to_owned(), message: e.to_string() })
 }
 
-fn code_key(v: &Value) -> Option<(String, String)> {
-    Some((v.get("system")?.as_str()?.to_owned(), v.get("code")?.as_str()?.to_owned()))
+fn item_key(v: &Value, key: ListKey) -> Option<(String, String)> {
+    match key {
+        ListKey::SystemCode => Some((v.get("system")?.as_str()?.to_owned(), v.get("code")?.as_str()?.to_owned())),
+        ListKey::Field(f) => Some((f.to_owned(), v.get(f)?.as_str()?.to_owned())),
+        ListKey::None => None,
+    }
 }
 
 /// Merge `over` into `base` (see the module docs for the rules).
@@ -86,10 +109,11 @@ pub fn merge(base: &mut Value, over: Value, path: &str) {
                 }
             }
         }
-        (Value::Array(b), Value::Array(o)) if ADDITIVE_LISTS.contains(&path) => {
+        (Value::Array(b), Value::Array(o)) if ADDITIVE_LISTS.iter().any(|(p, _)| *p == path) => {
+            let kind = ADDITIVE_LISTS.iter().find(|(p, _)| *p == path).map_or(ListKey::None, |(_, k)| *k);
             for item in o {
-                let key = code_key(&item);
-                match b.iter_mut().find(|x| key.is_some() && code_key(x) == key) {
+                let key = item_key(&item, kind);
+                match b.iter_mut().find(|x| key.is_some() && item_key(x, kind) == key) {
                     Some(slot) => *slot = item,
                     None => b.push(item),
                 }

@@ -41,34 +41,24 @@ pub struct RuleSet {
     /// Fixed texts shown in every output.
     pub texts: Texts,
     /// Age- and sex-specific reference intervals for the cause engine.
-    #[serde(default)]
     pub lab_ranges: Vec<LabRange>,
     /// 25-OH vitamin D cut-offs, one set chosen by the site.
-    #[serde(default)]
     pub vitamin_d_25oh_cutoffs: Choice<VitaminDCutoffs>,
     /// Which published urine Ca/Cr limits the ranges use, and the others.
-    #[serde(default)]
     pub urine_calcium_creatinine_limits: UrineLimits,
     /// Blood pH above which alkalosis is called.
-    #[serde(default)]
     pub alkalosis: Alkalosis,
     /// Bedside Schwartz eGFR.
-    #[serde(default)]
     pub egfr: Egfr,
     /// Code lists for conditions, medications and procedures.
-    #[serde(default)]
     pub code_lists: Vec<CodeList>,
     /// How findings are weighed into labels.
-    #[serde(default)]
     pub cause_weighing: Weighing,
     /// The causes and their findings.
-    #[serde(default)]
     pub causes: Vec<Cause>,
     /// Tests the planner may propose.
-    #[serde(default)]
     pub next_tests: Vec<NextTest>,
     /// Planner settings.
-    #[serde(default)]
     pub planner: PlannerRules,
 }
 
@@ -249,6 +239,9 @@ pub struct CodeList {
     pub any_status: bool,
     /// Codes.
     pub codes: Vec<ListedCode>,
+    /// Caution (e.g. why a list is empty).
+    #[serde(default)]
+    pub note: Option<String>,
 }
 
 /// Outcome of a lab against its range.
@@ -361,8 +354,9 @@ pub struct Cause {
     /// ClinicalImpression.finding (text only when there is none).
     #[serde(default)]
     pub code_from_list: Option<String>,
-    /// Labelled unlikely when none of its positive findings is met (for causes
-    /// that need an exposure or a finding to be considered at all).
+    /// Labelled unlikely unless a strong_for finding, or a supporting
+    /// condition, medication or procedure, is met (for causes that need an
+    /// exposure to be considered at all).
     #[serde(default)]
     pub needs_positive_finding: bool,
     /// Ages the cause applies to; outside it is ruled out.
