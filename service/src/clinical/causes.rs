@@ -102,6 +102,8 @@ pub struct CauseResult {
     pub missing: Vec<Analyte>,
     /// Why it is ruled out, when it is.
     pub ruled_out_by: Option<String>,
+    /// Unlikely only because nothing recorded points to it.
+    pub no_exposure: bool,
 }
 
 /// The context the engine reads: age interval on the result date, sex, and
@@ -375,6 +377,7 @@ fn evaluate_one(
         met: Vec::new(),
         missing: Vec::new(),
         ruled_out_by: None,
+        no_exposure: false,
     };
     if let Some(span) = &cause.applies
         && ctx.within(span) == Some(false)
@@ -417,6 +420,7 @@ fn evaluate_one(
     result.label = if result.ruled_out_by.is_some() {
         CauseLabel::RuledOut
     } else if cause.needs_positive_finding && !positive {
+        result.no_exposure = true;
         CauseLabel::Unlikely
     } else if result.score >= w.likely_at_least && (strong || !w.likely_needs_strong_finding) {
         CauseLabel::Likely

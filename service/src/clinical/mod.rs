@@ -9,6 +9,8 @@ pub mod facts;
 pub mod format;
 pub mod planner;
 pub mod status;
+#[cfg(test)]
+pub(crate) mod testing;
 pub mod time;
 pub mod units;
 pub mod workup;

@@ -43,6 +43,12 @@ fn cause_basis(rules: &RuleSet, c: &CauseResult) -> String {
     if let Some(why) = &c.ruled_out_by {
         parts.push(format!("Ruled out: {why}."));
     }
+    if c.no_exposure {
+        parts.push(
+            "Unlikely because nothing recorded points to it: it needs a recorded condition, medication or procedure, or a strong finding. Absence from the record is not proof of absence."
+                .to_owned(),
+        );
+    }
     for m in &c.met {
         parts.push(format!("{} [{} {:+}: {}]", m.text, effect_word(m.effect), m.points, m.source));
     }

@@ -220,7 +220,137 @@ fn consistency(rules: &RuleSet) -> Result<(), RuleError> {
             problems.push(format!("  analytes.{}: plausible min above max", key.key()));
         }
     }
+    workup_consistency(rules, &mut problems);
     if problems.is_empty() { Ok(()) } else { Err(RuleError::Inconsistent(problems)) }
+}
+
+/// Checks of the cause engine's data: every reference resolves, every range
+/// is in the canonical unit, the ranges tile the pediatric ages.
+fn workup_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
+    use crate::clinical::facts::Analyte;
+    use crate::rules::model::CodeListKind;
+    let list = |id: &str, kind: CodeListKind| rules.code_lists.iter().any(|l| l.id == id && l.kind == kind);
+    let mut seen = std::collections::BTreeSet::new();
+    for l in &rules.code_lists {
+        if !seen.insert(&l.id) {
+            problems.push(format!("  code_lists: '{}' is listed twice", l.id));
+        }
+    }
+    let read = |a: Analyte| rules.next_tests.iter().any(|t| t.analyte == a);
+    let ranged = |a: Analyte| {
+        rules.lab_ranges.iter().any(|r| r.analyte == a) || matches!(a, Analyte::VitaminD25Oh | Analyte::BloodPh)
+    };
+    for c in &rules.causes {
+        if let Some(l) = &c.code_from_list
+            && !list(l, CodeListKind::Condition)
+        {
+            problems.push(format!("  causes.{}: code_from_list '{l}' is not a condition code list", c.id));
+        }
+        for (k, f) in c.findings.iter().enumerate() {
+            let at = format!("  causes.{}.findings[{k}]", c.id);
+            for (id, kind) in [
+                (&f.condition, CodeListKind::Condition),
+                (&f.medication, CodeListKind::Medication),
+                (&f.procedure, CodeListKind::Procedure),
+            ] {
+                if let Some(id) = id
+                    && !list(id, kind)
+                {
+                    problems.push(format!("{at}: no {kind:?} code list '{id}'"));
+                }
+            }
+            if let Some(a) = f.lab {
+                if !read(a) {
+                    problems.push(format!("{at}: {} has no next_tests entry, so it is never read", a.key()));
+                }
+                if !ranged(a) {
+                    problems.push(format!("{at}: {} has no lab_ranges", a.key()));
+                }
+            }
+            if f.egfr && !read(Analyte::Creatinine) {
+                problems.push(format!("{at}: the eGFR needs a creatinine next_tests entry"));
+            }
+        }
+    }
+    for t in &rules.next_tests {
+        if let Some(code) = &t.code
+            && !rules
+                .observation_codes
+                .iter()
+                .any(|c| c.system == code.system && c.code == code.code && c.analyte == t.analyte)
+        {
+            problems.push(format!(
+                "  next_tests.{}: code {} is not an observation code of that analyte",
+                t.analyte.key(),
+                code.code
+            ));
+        }
+    }
+    if rules.vitamin_d_25oh_cutoffs.chosen().is_none() {
+        problems.push(format!(
+            "  vitamin_d_25oh_cutoffs: default '{}' is not among the options",
+            rules.vitamin_d_25oh_cutoffs.default
+        ));
+    }
+    for (k, r) in rules.lab_ranges.iter().enumerate() {
+        let canonical = rules.analyte(r.analyte).map(|a| a.canonical_unit.as_str());
+        if canonical != Some(r.unit.as_str()) {
+            problems.push(format!(
+                "  lab_ranges[{k}]: unit {} is not the canonical unit of {}",
+                r.unit,
+                r.analyte.key()
+            ));
+        }
+        if r.lower > r.upper {
+            problems.push(format!("  lab_ranges[{k}]: lower above upper"));
+        }
+    }
+    tiling(rules, problems);
+}
+
+/// Every analyte with ranges has exactly one range for each sex on every day
+/// from birth to 19 years (checked day by day for a child born 2000-01-01).
+fn tiling(rules: &RuleSet, problems: &mut Vec<String>) {
+    use crate::clinical::time::{Age, CivilDate};
+    use crate::rules::model::{AgeBound, AgeUnit, SexRestriction};
+    let at_least = |age: Age, b: AgeBound| {
+        let n = match b.unit {
+            AgeUnit::Days => age.days,
+            AgeUnit::Months => age.months,
+            AgeUnit::Years => age.years,
+        };
+        n >= i64::from(b.value)
+    };
+    let Some(birth) = CivilDate::new(2000, 1, 1) else { return };
+    let mut analytes: Vec<_> = rules.lab_ranges.iter().map(|r| r.analyte).collect();
+    analytes.sort();
+    analytes.dedup();
+    for a in analytes {
+        let mut reported = false;
+        for day in 0..(19 * 365 + 4) {
+            let on = CivilDate::from_days_since_epoch(birth.days_since_epoch() + day);
+            let Some(age) = Age::between(birth, on) else { continue };
+            if age.years >= 19 {
+                break;
+            }
+            for sex in [SexRestriction::Male, SexRestriction::Female] {
+                let n = rules
+                    .lab_ranges
+                    .iter()
+                    .filter(|r| r.analyte == a && (r.sex == SexRestriction::Any || r.sex == sex))
+                    .filter(|r| at_least(age, r.from) && !at_least(age, r.until))
+                    .count();
+                if n != 1 && !reported {
+                    problems.push(format!(
+                        "  lab_ranges: {} has {n} ranges for {sex:?} at age {}",
+                        a.key(),
+                        age.describe()
+                    ));
+                    reported = true;
+                }
+            }
+        }
+    }
 }
 
 fn hex(bytes: &[u8]) -> String {
