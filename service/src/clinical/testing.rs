@@ -149,9 +149,3 @@ pub fn facts_of(
     f.events = events;
     f
 }
-
-/// A status that is not final.
-pub fn preliminary(mut m: Measurement) -> Measurement {
-    m.status = ResultStatus::Preliminary;
-    m
-}

@@ -100,6 +100,10 @@ mod tests {
         event(EventKind::Condition, list, 24, list)
     }
 
+    type Event = crate::clinical::facts::CodedEvent;
+    type Case = (&'static str, Option<PartialDate>, Vec<Measurement>, Vec<Event>);
+    type BottomCase = (&'static str, Option<PartialDate>, Vec<Measurement>, Vec<Event>, CauseLabel);
+
     fn seven_years() -> Option<PartialDate> {
         born_days_ago(7 * 365 + 30)
     }
@@ -135,7 +139,7 @@ mod tests {
     #[test]
     fn each_cause_leads_on_its_own_findings() {
         let neonate_10_days = born_days_ago(10);
-        let cases: Vec<(&str, Option<PartialDate>, Vec<Measurement>, Vec<crate::clinical::facts::CodedEvent>)> = vec![
+        let cases: Vec<Case> = vec![
             ("vitamin_d_deficiency", seven_years(), vec![d25(15.0), p(0.8), pth(15.0), alp(600.0)], vec![]),
             ("dietary_calcium_deficiency", seven_years(), vec![d25(80.0), p(0.8), pth(15.0), alp(600.0)], vec![]),
             ("hypoparathyroidism", seven_years(), vec![pth(0.5), p(2.2), mg(0.8)], vec![]),
@@ -183,13 +187,7 @@ mod tests {
     #[test]
     fn each_cause_is_ruled_out_or_made_unlikely_by_its_findings() {
         use CauseLabel::{RuledOut, Unlikely};
-        let cases: Vec<(
-            &str,
-            Option<PartialDate>,
-            Vec<Measurement>,
-            Vec<crate::clinical::facts::CodedEvent>,
-            CauseLabel,
-        )> = vec![
+        let cases: Vec<BottomCase> = vec![
             ("vitamin_d_deficiency", seven_years(), vec![d25(80.0)], vec![], RuledOut),
             ("dietary_calcium_deficiency", seven_years(), vec![pth(0.5)], vec![], Unlikely),
             ("hypoparathyroidism", seven_years(), vec![pth(15.0)], vec![], RuledOut),
