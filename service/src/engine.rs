@@ -3,7 +3,7 @@
 
 use serde_json::Value;
 
-use crate::clinical::{status, workup};
+use crate::clinical::{status, treatment, workup};
 use crate::fhir::outcome::RequestError;
 use crate::fhir::profiles::Profiles;
 use crate::fhir::{read, write};
@@ -66,13 +66,20 @@ impl Engine {
                 assessment.status = status::GuidanceStatus::DataRequired;
             }
         }
+        let treatment = assessment
+            .finding
+            .as_ref()
+            .and_then(|f| treatment::plan(&self.rules.rules, &ingested.facts, f, workup.as_ref()));
         // Everything recognised that no rule read is listed too.
         let read_by_workup: Vec<&str> = workup
             .iter()
             .flat_map(|w| w.readings.labs.values().chain(w.readings.egfr.iter()))
             .flat_map(|r| r.sources.iter().map(|s| s.expression.as_str()))
             .collect();
-        let listed: Vec<String> = assessment.unused.iter().map(|u| u.source.expression.clone()).collect();
+        let mut listed: Vec<String> = assessment.unused.iter().map(|u| u.source.expression.clone()).collect();
+        if let Some(w) = treatment.as_ref().and_then(|t| t.weight.as_ref()) {
+            listed.push(w.source.expression.clone());
+        }
         let rest: Vec<_> = status::unused_by_status(&ingested.facts)
             .into_iter()
             .filter(|u| {
@@ -80,7 +87,7 @@ impl Engine {
             })
             .collect();
         assessment.unused.extend(rest);
-        let bundle = write::result_bundle(&ctx, &ingested, &assessment, workup.as_ref());
+        let bundle = write::result_bundle(&ctx, &ingested, &assessment, workup.as_ref(), treatment.as_ref());
         Ok(Outcome {
             bundle,
             status: assessment.status.code(),

@@ -535,7 +535,7 @@ async fn a_preliminary_result_is_used_with_a_caution() {
     // Hypocalcemia with only a calcium result: the work-up cannot tell the causes apart.
     assert_eq!(guidance_status(&result), "data-required");
     // 0.85 mmol/L in a six-year-old: below 1.11 and at or below the severe grade 0.9.
-    let issue = crate::helpers::only(&result, "DetectedIssue");
+    let issue = crate::helpers::hypocalcemia_issue(&result);
     assert_eq!(issue["severity"], "high", "{issue}");
     assert!(references_in(&issue["evidence"]).iter().any(|r| r == "Observation/ica-prelim"), "{issue}");
     let notes = guidance_notes(&result);
@@ -568,7 +568,7 @@ async fn mg_per_dl_with_a_lower_case_litre_is_ucum_and_is_used() {
         // 6.0 + 0.8 x (4.0 - 4.0) = 6.0 mg/dL = 60 / 40.078 = 1.50 mmol/L: below the severe grade 1.8.
         let derived = crate::helpers::only(result, "Observation");
         assert_eq!(derived["valueQuantity"]["value"], json!(1.5), "{derived}");
-        assert_eq!(crate::helpers::only(result, "DetectedIssue")["severity"], "high");
+        assert_eq!(crate::helpers::hypocalcemia_issue(result)["severity"], "high");
         assert!(issue_at(&outcome_issues(result), "Bundle.entry[1].resource.valueQuantity.code").is_none());
     }
 }

@@ -199,7 +199,14 @@ async fn the_work_up_resources_are_linked_from_the_guidance_response() {
     let group = only(&result, "RequestGroup");
     assert_eq!(group["status"], "draft");
     assert_eq!(group["intent"], "proposal");
-    let actions: Vec<String> = group["action"]
+    // Top-level action groups: treatment proposals (when any), then the next tests.
+    let next_tests = group["action"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|a| a["title"] == "Next tests (drafts)")
+        .expect("a next-tests group");
+    let actions: Vec<String> = next_tests["action"]
         .as_array()
         .unwrap()
         .iter()

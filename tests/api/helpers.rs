@@ -276,6 +276,18 @@ pub fn resources<'a>(bundle: &'a Value, resource_type: &str) -> Vec<&'a Value> {
         .unwrap_or_default()
 }
 
+/// The hypocalcemia DetectedIssues of a result Bundle (safety issues are DetectedIssues too).
+pub fn hypocalcemia_issues(bundle: &Value) -> Vec<&Value> {
+    resources(bundle, "DetectedIssue").into_iter().filter(|d| d["code"]["text"] == "Hypocalcemia").collect()
+}
+
+/// The one hypocalcemia DetectedIssue.
+pub fn hypocalcemia_issue(bundle: &Value) -> &Value {
+    let found = hypocalcemia_issues(bundle);
+    assert_eq!(found.len(), 1, "expected exactly one hypocalcemia DetectedIssue in {bundle}");
+    found[0]
+}
+
 /// The one resource of a type in a result Bundle.
 pub fn only<'a>(bundle: &'a Value, resource_type: &str) -> &'a Value {
     let found = resources(bundle, resource_type);

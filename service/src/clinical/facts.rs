@@ -213,6 +213,44 @@ pub struct CodedEvent {
     pub code: Code,
     /// Where it came from.
     pub source: Source,
+    /// Dose given in mg (MedicationAdministration.dosage.dose), when stated in mg.
+    pub dose_mg: Option<f64>,
+    /// Still running (an administration in progress, or an active order).
+    pub in_progress: bool,
+}
+
+/// The vascular access the request says the child has (a `vascularAccess`
+/// part of the Parameters wrapper; Unknown when not given).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum VascularAccess {
+    /// Not stated.
+    #[default]
+    Unknown,
+    /// Peripheral venous line.
+    Peripheral,
+    /// Central venous line.
+    Central,
+    /// Arterial line.
+    Arterial,
+    /// Umbilical arterial catheter.
+    UmbilicalArterial,
+    /// Umbilical venous catheter.
+    UmbilicalVenous,
+}
+
+impl VascularAccess {
+    /// From the code used in the Parameters part.
+    pub fn from_code(code: &str) -> Option<Self> {
+        Some(match code {
+            "peripheral" => Self::Peripheral,
+            "central" => Self::Central,
+            "arterial" => Self::Arterial,
+            "umbilical-arterial" => Self::UmbilicalArterial,
+            "umbilical-venous" => Self::UmbilicalVenous,
+            "unknown" => Self::Unknown,
+            _ => return None,
+        })
+    }
 }
 
 /// Administrative gender, as far as the rules care.
@@ -247,6 +285,8 @@ pub struct Facts {
     pub symptoms: Vec<SymptomFinding>,
     /// Conditions, medications and procedures in the rule set's code lists.
     pub events: Vec<CodedEvent>,
+    /// The vascular access, as the request states it.
+    pub vascular_access: VascularAccess,
     /// Gestational age at birth in weeks, if recorded.
     pub gestational_age_weeks: Option<f64>,
     /// Evaluation time, unix seconds.

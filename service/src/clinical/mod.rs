@@ -7,10 +7,12 @@ pub mod bands;
 pub mod causes;
 pub mod facts;
 pub mod format;
+pub mod growth;
 pub mod planner;
 pub mod status;
 #[cfg(test)]
 pub(crate) mod testing;
 pub mod time;
+pub mod treatment;
 pub mod units;
 pub mod workup;

@@ -79,6 +79,7 @@ pub fn facts(birth: Option<PartialDate>, measurements: Vec<Measurement>) -> Fact
         measurements,
         symptoms: Vec::new(),
         events: Vec::new(),
+        vascular_access: Default::default(),
         gestational_age_weeks: None,
         now: now(),
     }
@@ -119,6 +120,8 @@ pub fn event(kind: EventKind, list: &str, hours_ago: i64, id: &str) -> CodedEven
         when: Some(at(now() - hours_ago * HOUR)),
         when_text: Some(format!("{hours_ago} h ago")),
         code: Code { system: "urn:test".into(), code: list.into(), display: list.into() },
+        dose_mg: None,
+        in_progress: false,
         source: Source {
             resource_type: match kind {
                 EventKind::Condition => "Condition",

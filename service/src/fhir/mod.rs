@@ -6,4 +6,5 @@ pub mod outcome;
 pub mod profiles;
 pub mod read;
 pub mod write;
+pub mod write_treatment;
 pub mod write_workup;

@@ -78,6 +78,7 @@ impl Entry<'_> {
 }
 
 struct Reader<'a> {
+    access: crate::clinical::facts::VascularAccess,
     rules: &'a RuleSet,
     profiles: &'a Profiles,
     prefix: String,
@@ -136,6 +137,7 @@ pub fn read_value(
     };
     let resource_type = obj.get("resourceType").and_then(Value::as_str).unwrap_or("");
     let mut now_from_request = None;
+    let mut access = crate::clinical::facts::VascularAccess::Unknown;
     let (bundle, prefix) = match resource_type {
         "Bundle" => (root, "Bundle".to_owned()),
         "Parameters" => {
@@ -160,6 +162,19 @@ pub fn read_value(
                         now = parsed.when.latest;
                         now_from_request = Some(text.to_owned());
                     }
+                }
+            }
+            for (i, p) in params.iter().enumerate() {
+                if str_at(p, "name") == Some("vascularAccess") {
+                    let code = str_at(p, "valueCode").unwrap_or("");
+                    access = crate::clinical::facts::VascularAccess::from_code(code).ok_or_else(|| {
+                        whole(
+                            422,
+                            IssueCode::Value,
+                            format!("Parameters.parameter[{i}].valueCode"),
+                            "The 'vascularAccess' part must be one of peripheral, central, arterial, umbilical-arterial, umbilical-venous, unknown.",
+                        )
+                    })?;
                 }
             }
             let found = params.iter().enumerate().find(|(_, p)| str_at(p, "name") == Some("bundle"));
@@ -200,7 +215,7 @@ pub fn read_value(
             ));
         }
     };
-    let mut reader = Reader { rules, profiles, prefix, set_aside: Vec::new(), now };
+    let mut reader = Reader { access, rules, profiles, prefix, set_aside: Vec::new(), now };
     let (facts, patient_reference) = reader.bundle(bundle)?;
     Ok(Ingested {
         facts,
@@ -375,6 +390,7 @@ impl<'a> Reader<'a> {
                 measurements,
                 symptoms,
                 events,
+                vascular_access: self.access,
                 gestational_age_weeks: gestation,
                 now: self.now,
             },

@@ -106,6 +106,8 @@ impl<'a> Reader<'a> {
         }
         if let Some(code) = listed_code {
             events.push(CodedEvent {
+                dose_mg: None,
+                in_progress: false,
                 kind: EventKind::Condition,
                 lists,
                 when,
@@ -178,7 +180,19 @@ impl<'a> Reader<'a> {
         };
         let Ok(when) = self.time_of(e, path, text.as_deref()) else { return };
         let (when, when_text) = when.map_or((None, None), |(w, t)| (Some(w), Some(t)));
+        // A dose is counted only when stated in mg (UCUM): mL would need the product's strength.
+        let dose_mg = r.get("dosage").and_then(|d| d.get("dose")).and_then(|q| {
+            (str_at(q, "system") == Some(super::UCUM) && str_at(q, "code") == Some("mg"))
+                .then(|| q.get("value").and_then(Value::as_f64))
+                .flatten()
+        });
+        let in_progress = matches!(
+            (e.resource_type, status),
+            ("MedicationAdministration", "in-progress") | ("MedicationRequest", "active")
+        );
         events.push(CodedEvent {
+            dose_mg,
+            in_progress,
             kind: EventKind::Medication,
             lists,
             when,
@@ -222,6 +236,8 @@ impl<'a> Reader<'a> {
         let Ok(when) = self.time_of(e, path, text.as_deref()) else { return };
         let (when, when_text) = when.map_or((None, None), |(w, t)| (Some(w), Some(t)));
         events.push(CodedEvent {
+            dose_mg: None,
+            in_progress: status == "in-progress",
             kind: EventKind::Procedure,
             lists,
             when,

@@ -16,6 +16,7 @@ use super::read::{Ingested, UCUM};
 use crate::clinical::facts::{Analyte, Source};
 use crate::clinical::format::{num, value_with_mg_dl};
 use crate::clinical::status::{Assessment, CalciumFinding, Classification, DerivedAdjusted, GuidanceStatus};
+use crate::clinical::treatment::TreatmentPlan;
 use crate::clinical::workup::Workup;
 use crate::rules::LoadedRules;
 
@@ -107,7 +108,13 @@ fn effective(text: &str) -> (&'static str, Value) {
 }
 
 /// Build the result Bundle.
-pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessment, workup: Option<&Workup>) -> Value {
+pub fn result_bundle(
+    ctx: &OutputContext<'_>,
+    ingested: &Ingested,
+    a: &Assessment,
+    workup: Option<&Workup>,
+    treatment: Option<&TreatmentPlan>,
+) -> Value {
     let now = format_instant(ctx.now);
     let rules = &ctx.rules.rules;
     let id = |k: &str| ctx.uuid(k);
@@ -164,6 +171,40 @@ pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessmen
         entries.extend(wo.entries.iter().cloned());
         targets.extend(wo.targets.iter().cloned());
     }
+    // Treatment proposals and safety issues.
+    let calcium_ref = a.finding.as_ref().and_then(|f| f.evidence.first()).map(reference);
+    let to = treatment
+        .map(|t| super::write_treatment::treatment_output(ctx, &subject, &device, &now, calcium_ref.as_ref(), t));
+    if let Some(to) = &to {
+        entries.extend(to.entries.iter().cloned());
+        targets.extend(to.targets.iter().cloned());
+    }
+    // One RequestGroup orders every proposal: treatment first, then next tests.
+    let mut actions: Vec<Value> = Vec::new();
+    if let Some(to) = &to {
+        actions.extend(to.actions.iter().cloned());
+    }
+    if let Some(wo) = &wo {
+        actions.extend(wo.actions.iter().cloned());
+    }
+    let plan_ref = (!actions.is_empty()).then(|| json!({ "reference": urn("plan"), "type": "RequestGroup" }));
+    if plan_ref.is_some() {
+        entries.push(json!({
+            "fullUrl": urn("plan"),
+            "resource": {
+                "resourceType": "RequestGroup",
+                "id": id("plan"),
+                "status": "draft",
+                "intent": "proposal",
+                "subject": subject,
+                "authoredOn": now,
+                "author": device,
+                "action": actions,
+                "note": [{ "text": rules.texts.advisory }],
+            }
+        }));
+        targets.push(json!({ "reference": urn("plan"), "type": "RequestGroup" }));
+    }
 
     // OperationOutcome of everything not used.
     let mut issues: Vec<Issue> = ingested
@@ -209,6 +250,11 @@ pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessmen
             notes.push(json!({ "text": format!("Work-up: {n}") }));
         }
     }
+    if let Some(to) = &to {
+        for n in &to.notes {
+            notes.push(json!({ "text": format!("Treatment: {n}") }));
+        }
+    }
     notes.push(json!({ "text": rules.texts.advisory }));
     notes.push(json!({ "text": format!("Rule set: {}.", ctx.rules.label()) }));
     let mut gr = json!({
@@ -228,15 +274,15 @@ pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessmen
     let mut requirements = data_requirements(ctx, a);
     if let Some(wo) = &wo {
         requirements.extend(wo.data_requirements.iter().cloned());
-        if let Some(r) = &wo.result {
-            gr["result"] = r.clone();
-        }
         if let Some(p) = &wo.output_parameters {
             gr["outputParameters"] = p.clone();
         }
     }
     if !requirements.is_empty() {
         gr["dataRequirement"] = json!(requirements);
+    }
+    if let Some(r) = &plan_ref {
+        gr["result"] = r.clone();
     }
     targets.insert(0, json!({ "reference": urn("guidance"), "type": "GuidanceResponse" }));
     entries.insert(0, json!({ "fullUrl": urn("guidance"), "resource": gr }));
@@ -257,6 +303,9 @@ pub fn result_bundle(ctx: &OutputContext<'_>, ingested: &Ingested, a: &Assessmen
     let mut used: Vec<&Source> = Vec::new();
     if let Some(f) = &a.finding {
         used.extend(f.evidence.iter());
+    }
+    if let Some(w) = treatment.and_then(|t| t.weight.as_ref()) {
+        used.push(&w.source);
     }
     used.push(&ingested.facts.patient.source);
     let entities: Vec<Value> = used.into_iter().map(|s| json!({ "role": "source", "what": reference(s) })).collect();

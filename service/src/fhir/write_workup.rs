@@ -18,8 +18,8 @@ pub struct WorkupOutput {
     pub entries: Vec<Value>,
     /// Provenance targets.
     pub targets: Vec<Value>,
-    /// GuidanceResponse.result (the RequestGroup), when tests are proposed.
-    pub result: Option<Value>,
+    /// RequestGroup actions (one group: the next tests), when tests are proposed.
+    pub actions: Vec<Value>,
     /// GuidanceResponse.outputParameters.
     pub output_parameters: Option<Value>,
     /// Extra GuidanceResponse.dataRequirement entries.
@@ -187,32 +187,16 @@ pub fn workup_output(
     if !actions.is_empty() {
         let names: Vec<&str> = w.plan.proposals.iter().map(|p| p.test.label.as_str()).collect();
         out.notes.push(format!("Next tests proposed (drafts, not orders): {}.", names.join("; ")));
-        let group = json!({
-            "resourceType": "RequestGroup",
-            "id": ctx.uuid("next-tests"),
-            "status": "draft",
-            "intent": "proposal",
-            "subject": subject,
-            "authoredOn": now,
-            "author": device,
+        out.actions.push(json!({
+            "title": "Next tests (drafts)",
+            "description": format!("Proposed next tests, best first: each is the test whose possible results would best separate the causes still open, for its burden ({}). Drafts for a clinician; nothing is ordered.", rules.planner.source),
             "action": actions,
-            "note": [
-                { "text": "Proposed next tests, best first: each is the test whose possible results would best separate the causes still open, for its burden. Drafts for a clinician; nothing is ordered." },
-                { "text": format!("Planner: {}", rules.planner.source) },
-                { "text": rules.texts.advisory },
-            ],
-        });
-        out.result = Some(json!({ "reference": urn("next-tests"), "type": "RequestGroup" }));
-        out.targets.push(json!({ "reference": urn("next-tests"), "type": "RequestGroup" }));
-        out.entries.push(json!({ "fullUrl": urn("next-tests"), "resource": group }));
+        }));
     }
 
-    let mut parameters = vec![
+    let parameters = vec![
         json!({ "name": "clinicalImpression", "valueReference": { "reference": urn("impression"), "type": "ClinicalImpression" } }),
     ];
-    if out.result.is_some() {
-        parameters.push(json!({ "name": "nextTests", "valueReference": { "reference": urn("next-tests"), "type": "RequestGroup" } }));
-    }
     out.entries.push(json!({
         "fullUrl": urn("output-parameters"),
         "resource": { "resourceType": "Parameters", "id": ctx.uuid("output-parameters"), "parameter": parameters },

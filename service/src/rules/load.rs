@@ -19,6 +19,9 @@ pub const DEFAULT_FILES: &[(&str, &str)] = &[
     ("lab-ranges.toml", include_str!("../../rules/lab-ranges.toml")),
     ("cause-codes.toml", include_str!("../../rules/cause-codes.toml")),
     ("causes.toml", include_str!("../../rules/causes.toml")),
+    ("formulary.toml", include_str!("../../rules/formulary.toml")),
+    ("growth.toml", include_str!("../../rules/growth.toml")),
+    ("treatment.toml", include_str!("../../rules/treatment.toml")),
 ];
 
 /// The JSON Schema every merged rule document must pass.
@@ -33,6 +36,8 @@ const ADDITIVE_LISTS: &[(&str, ListKey)] = &[
     ("causes", ListKey::Field("id")),
     ("next_tests", ListKey::Field("analyte")),
     ("unverified", ListKey::None),
+    ("products", ListKey::Field("id")),
+    ("dose_sources", ListKey::Field("id")),
 ];
 
 #[derive(Clone, Copy)]

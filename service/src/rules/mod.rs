@@ -3,5 +3,6 @@
 
 pub mod load;
 pub mod model;
+pub mod treatment_model;
 
 pub use load::{LoadedRules, RuleError};

@@ -60,6 +60,22 @@ pub struct RuleSet {
     pub next_tests: Vec<NextTest>,
     /// Planner settings.
     pub planner: PlannerRules,
+    /// Formulary products.
+    pub products: Vec<super::treatment_model::Product>,
+    /// Published dose ranges.
+    pub dose_sources: Vec<super::treatment_model::DoseSource>,
+    /// The site's treatment policy.
+    pub treatment: super::treatment_model::TreatmentPolicy,
+    /// Weight-for-age LMS tables.
+    pub growth_references: Vec<super::treatment_model::GrowthReference>,
+    /// Growth reference policy.
+    pub growth_policy: super::treatment_model::GrowthPolicy,
+    /// Calcium gluconate administration limits.
+    pub calcium_gluconate_administration: super::treatment_model::GluconateAdministration,
+    /// Magnesium sulfate administration limits.
+    pub magnesium_sulfate_administration: super::treatment_model::MagnesiumAdministration,
+    /// Published safety facts, by key.
+    pub safety_sources: std::collections::BTreeMap<String, super::treatment_model::SafetySource>,
 }
 
 /// Sex restriction of a range.

@@ -1,0 +1,89 @@
+//! Weight-for-age plausibility: the LMS method on WHO (birth to 24 months)
+//! and CDC (from 24 months) weight-for-age tables from the rule data.
+//!
+//! z = ((X/M)^L - 1) / (L*S) for L != 0, z = ln(X/M) / S for L = 0, with L, M
+//! and S interpolated linearly between the tabulated ages (formula: CDC "WHO
+//! Growth Charts Data files" page). Beyond |z| > 3 the WHO restricted method
+//! is used (WHO Child Growth Standards, methods report 2006): z = 3 + (X -
+//! SD3) / (SD3 - SD2) above, z = -3 - (SD3neg - X) / (SD2neg - SD3neg) below,
+//! where SDk = M (1 + L S k)^(1/L). Without it the plain LMS z saturates when
+//! L < 0 (CDC tables at older ages), so a grossly wrong heavy weight could
+//! pass the plausibility check.
+
+use crate::rules::model::RuleSet;
+use crate::rules::treatment_model::GrowthReference;
+
+/// A z-score and the table it came from.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ZScore {
+    /// z.
+    pub z: f64,
+    /// Reference id.
+    pub reference: String,
+    /// Interpolated M (median), kg.
+    pub median: f64,
+}
+
+/// L, M, S at an age, interpolated; `None` outside the table.
+pub fn lms_at(table: &GrowthReference, age_months: f64) -> Option<(f64, f64, f64)> {
+    let rows = &table.rows;
+    let first = rows.first()?;
+    if age_months < first[0] {
+        return None;
+    }
+    for w in rows.windows(2) {
+        let (a, b) = (w[0], w[1]);
+        if age_months >= a[0] && age_months <= b[0] {
+            let t = if b[0] > a[0] { (age_months - a[0]) / (b[0] - a[0]) } else { 0.0 };
+            return Some((a[1] + t * (b[1] - a[1]), a[2] + t * (b[2] - a[2]), a[3] + t * (b[3] - a[3])));
+        }
+    }
+    let last = rows.last()?;
+    (age_months == last[0]).then_some((last[1], last[2], last[3]))
+}
+
+/// The plain LMS z-score of `x`.
+pub fn lms_z(x: f64, l: f64, m: f64, s: f64) -> f64 {
+    if l.abs() < 1e-12 { (x / m).ln() / s } else { ((x / m).powf(l) - 1.0) / (l * s) }
+}
+
+/// The measurement at z = k.
+pub fn lms_x(k: f64, l: f64, m: f64, s: f64) -> f64 {
+    if l.abs() < 1e-12 { m * (s * k).exp() } else { m * (1.0 + l * s * k).powf(1.0 / l) }
+}
+
+/// The z-score with WHO's restricted extrapolation beyond |z| > 3.
+pub fn restricted_z(x: f64, l: f64, m: f64, s: f64) -> f64 {
+    let z = lms_z(x, l, m, s);
+    if z > 3.0 || !z.is_finite() && x > m {
+        let (sd2, sd3) = (lms_x(2.0, l, m, s), lms_x(3.0, l, m, s));
+        if sd3.is_finite() && sd3 > sd2 {
+            return 3.0 + (x - sd3) / (sd3 - sd2);
+        }
+    } else if z < -3.0 {
+        let (sd2, sd3) = (lms_x(-2.0, l, m, s), lms_x(-3.0, l, m, s));
+        if sd2 > sd3 {
+            return -3.0 - (sd3 - x) / (sd2 - sd3);
+        }
+    }
+    z
+}
+
+/// Weight-for-age z for a sex ("male" / "female") at an age in months.
+pub fn weight_for_age_z(rules: &RuleSet, sex: &str, age_months: f64, weight_kg: f64) -> Option<ZScore> {
+    let who = age_months < rules.growth_policy.use_who_until_months;
+    let table = rules.growth_references.iter().find(|t| {
+        t.sex == sex
+            && t.measure == "weight"
+            && (t.id.starts_with("who") == who)
+            && age_months >= t.from_months
+            && age_months <= t.until_months
+    })?;
+    let (l, m, s) = lms_at(table, age_months)?;
+    Some(ZScore { z: restricted_z(weight_kg, l, m, s), reference: table.label.clone(), median: m })
+}
+
+/// Age in months from days (mean Gregorian month, 30.4375 days).
+pub fn months_from_days(days: i64) -> f64 {
+    days as f64 / 30.4375
+}

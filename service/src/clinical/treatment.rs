@@ -1,0 +1,900 @@
+//! Treatment proposals: weight-based DRAFT medication proposals with their
+//! arithmetic, and the safety checks that protect the child. Nothing here
+//! orders anything: the writer turns these into MedicationRequests with
+//! status draft and intent proposal.
+//!
+//! When: symptomatic or severe hypocalcemia -> IV calcium gluconate bolus,
+//! then a continuous infusion (calcium chloride only as a central-line
+//! alternative); otherwise oral elemental calcium. Low magnesium -> IV
+//! magnesium sulfate first. Nutritional vitamin D deficiency ->
+//! cholecalciferol by age band; hypoparathyroidism, the 1-alpha-hydroxylase
+//! defect or kidney disease -> calcitriol, flagged for specialist dosing.
+
+use super::causes::{CauseLabel, Context};
+use super::facts::{Analyte, CodedEvent, EventKind, Facts, Gender, Source, VascularAccess};
+use super::format::num;
+use super::growth;
+use super::status::{CalciumFinding, Classification};
+use super::workup::Workup;
+use crate::rules::model::{IssueSeverity, LabOutcome, RuleSet};
+use crate::rules::treatment_model::{Chosen, DoseSource, Pick, Product};
+
+/// The dosing weight, or why there is none.
+#[derive(Debug, Clone)]
+pub struct Weight {
+    /// kg.
+    pub kg: f64,
+    /// Where it came from.
+    pub source: Source,
+    /// When, as written.
+    pub when_text: String,
+    /// Weight-for-age z (None when the sex is not recorded: both were checked).
+    pub z: Option<growth::ZScore>,
+}
+
+/// Route of a proposal.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Route {
+    /// Intravenous.
+    Iv,
+    /// Oral.
+    Oral,
+}
+
+/// A quantity with a UCUM unit.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Qty {
+    /// Value.
+    pub value: f64,
+    /// UCUM code.
+    pub unit: &'static str,
+}
+
+/// A draft medication proposal.
+#[derive(Debug, Clone)]
+pub struct MedProposal {
+    /// Stable key (for ids).
+    pub key: &'static str,
+    /// Title.
+    pub title: String,
+    /// The product.
+    pub product: Product,
+    /// The arithmetic and instructions, as the card shows them.
+    pub text: String,
+    /// Dose per administration.
+    pub dose: Option<Qty>,
+    /// Rate.
+    pub rate: Option<Qty>,
+    /// Times per day (oral, vitamin D).
+    pub per_day: Option<u32>,
+    /// For this many days.
+    pub days: Option<u32>,
+    /// Maximum per day.
+    pub max_per_day: Option<Qty>,
+    /// Route.
+    pub route: Route,
+    /// The chosen source and the others shown.
+    pub sources: Vec<String>,
+    /// An alternative to another proposal (choose one).
+    pub alternative: bool,
+    /// Needs a specialist to set the dose (no dose given).
+    pub specialist: bool,
+}
+
+/// A safety problem.
+#[derive(Debug, Clone)]
+pub struct SafetyIssue {
+    /// Stable key.
+    pub key: &'static str,
+    /// v3 ActCode for DetectedIssue.code, when one fits.
+    pub act_code: Option<(&'static str, &'static str)>,
+    /// Severity.
+    pub severity: IssueSeverity,
+    /// Short title.
+    pub title: String,
+    /// Detail with the numbers.
+    pub detail: String,
+    /// Inputs implicated.
+    pub implicated: Vec<Source>,
+    /// What to do.
+    pub mitigation: String,
+}
+
+/// The treatment plan.
+#[derive(Debug, Clone, Default)]
+pub struct TreatmentPlan {
+    /// Proposals, in the order to give them.
+    pub proposals: Vec<MedProposal>,
+    /// Safety problems.
+    pub issues: Vec<SafetyIssue>,
+    /// Notes (diet advice, what was not proposed and why).
+    pub notes: Vec<String>,
+    /// The weight used.
+    pub weight: Option<Weight>,
+}
+
+fn chosen<'r>(ctx: &Context, list: &'r [Chosen]) -> Option<&'r Chosen> {
+    list.iter().find(|c| ctx.within(&c.applies) == Some(true))
+}
+
+fn dose_source<'r>(rules: &'r RuleSet, id: &str) -> Option<&'r DoseSource> {
+    rules.dose_sources.iter().find(|d| d.id == id)
+}
+
+fn product<'r>(rules: &'r RuleSet, id: &str) -> Option<&'r Product> {
+    rules.products.iter().find(|p| p.id == id)
+}
+
+/// The dose for a weight: per-kg sources times the weight, flat sources as they are.
+fn dose_for(d: &DoseSource, per_unit: f64, weight_kg: f64) -> (f64, String) {
+    let per_kg_ml = d.unit == "mL/kg";
+    if per_kg_ml {
+        let per_kg = per_unit;
+        (weight_kg * per_kg, format!("{} kg x {} mg/kg", num_trim(weight_kg), num_trim(per_kg)))
+    } else if d.unit.ends_with("/kg") || d.unit.ends_with("/kg/h") || d.unit.ends_with("/kg/d") {
+        (weight_kg * per_unit, format!("{} kg x {} {}", num_trim(weight_kg), num_trim(per_unit), d.unit))
+    } else {
+        (per_unit, format!("{} {} (a flat dose)", num_trim(per_unit), d.unit))
+    }
+}
+
+fn cap_of(c: &Chosen, d: &DoseSource) -> Option<(f64, String)> {
+    match (c.max_single, d.max_single) {
+        (Some(m), _) => Some((m, c.max_single_source.clone().unwrap_or_else(|| "rule data".into()))),
+        (None, Some(m)) => Some((m, format!("{}; {}", d.source, d.confidence))),
+        _ => None,
+    }
+}
+
+fn pick(d: &DoseSource, p: Pick) -> f64 {
+    match p {
+        Pick::Low => d.low,
+        Pick::High => d.high,
+        Pick::Mid => (d.low + d.high) / 2.0,
+    }
+}
+
+/// "range 100-200 mg/kg (source)".
+fn range_text(d: &DoseSource) -> String {
+    format!("{}-{} {} ({}; {})", num_trim(d.low), num_trim(d.high), d.unit, d.source, d.confidence)
+}
+
+fn sources_shown(rules: &RuleSet, chosen: &DoseSource, also: &[String], ctx: &Context) -> Vec<String> {
+    let mut out = vec![format!("Chosen: {}", range_text(chosen))];
+    for id in also {
+        if let Some(d) = dose_source(rules, id).filter(|d| d.id != chosen.id && ctx.within(&d.applies) != Some(false)) {
+            out.push(format!("Also published: {}", range_text(d)));
+        }
+    }
+    out
+}
+
+/// A number without needless trailing zeros (up to 2 decimals).
+pub fn num_trim(v: f64) -> String {
+    let s = format!("{v:.2}");
+    s.trim_end_matches('0').trim_end_matches('.').to_owned()
+}
+
+fn cap_text(cap: &Option<(f64, String)>, capped: bool, unit: &str) -> String {
+    match (capped, cap) {
+        (true, Some((max, source))) => {
+            format!(" capped at the maximum single dose {} {unit} ({source})", num_trim(*max))
+        }
+        _ => String::new(),
+    }
+}
+
+fn round_to(v: f64, step: f64) -> f64 {
+    if step > 0.0 { (v / step).round() * step } else { v }
+}
+
+/// Pick the dosing weight and check it.
+pub fn dosing_weight(rules: &RuleSet, facts: &Facts, ctx: &Context) -> Result<Weight, String> {
+    let limit = facts.now - (rules.treatment.weight.max_age_days * 86_400.0).round() as i64;
+    let all = facts.of(Analyte::BodyWeight);
+    let Some(w) = all.first() else {
+        return Err("No body weight is recorded. Record a current weight to get weight-based doses.".to_owned());
+    };
+    if w.when.latest < limit {
+        return Err(format!(
+            "The most recent weight ({} kg at {}) is older than {} days ({}). Record a current weight.",
+            num_trim(w.value),
+            w.when_text,
+            num(rules.treatment.weight.max_age_days, 0),
+            rules.treatment.weight.source
+        ));
+    }
+    let months = growth::months_from_days(ctx.age_min.days);
+    let limit_z = rules.growth_policy.implausible_abs_z;
+    let sexes: &[&str] = match ctx.gender {
+        Gender::Male => &["male"],
+        Gender::Female => &["female"],
+        _ => &["male", "female"],
+    };
+    let zs: Vec<growth::ZScore> =
+        sexes.iter().filter_map(|s| growth::weight_for_age_z(rules, s, months, w.value)).collect();
+    if zs.is_empty() {
+        return Err("No weight-for-age reference covers this age; the weight cannot be checked.".to_owned());
+    }
+    // Implausible only when implausible for every sex it could be checked for.
+    if zs.iter().all(|z| z.z.abs() > limit_z) {
+        let z = &zs[0];
+        return Err(format!(
+            "The weight {} kg is implausible for the age (weight-for-age z = {}; median {} kg; {}; limit |z| > {} ({})). It may be a unit or entry error. Check and re-record the weight.",
+            num_trim(w.value),
+            num(z.z, 1),
+            num(z.median, 1),
+            z.reference,
+            num_trim(limit_z),
+            rules.growth_policy.implausible_source
+        ));
+    }
+    let z = if zs.len() == 1 { zs.into_iter().next() } else { None };
+    Ok(Weight { kg: w.value, source: w.source.clone(), when_text: w.when_text.clone(), z })
+}
+
+fn events_in<'f>(facts: &'f Facts, list: &str, kind: EventKind) -> Vec<&'f CodedEvent> {
+    facts.events.iter().filter(|e| e.kind == kind && e.lists.iter().any(|l| l == list)).collect()
+}
+
+/// Elemental calcium and mEq in a volume of an IV product.
+fn elemental_text(p: &Product, ml: f64) -> String {
+    let mut parts = Vec::new();
+    if let Some(e) = p.elemental_mg {
+        parts.push(format!("{} mg elemental {}", num_trim(e * ml), p.elemental.as_deref().unwrap_or("")));
+    }
+    if let Some(m) = p.meq {
+        parts.push(format!("{} mEq", num_trim(m * ml)));
+    }
+    parts.join(", ")
+}
+
+/// Build the plan. `None` when no treatment is due (calcium not low).
+pub fn plan(
+    rules: &RuleSet,
+    facts: &Facts,
+    finding: &CalciumFinding,
+    workup: Option<&Workup>,
+) -> Option<TreatmentPlan> {
+    let ctx = Context::new(facts, finding.when)?;
+    let t = &rules.treatment;
+    let mut plan = TreatmentPlan::default();
+    let low = finding.classification == Classification::Low;
+    safety_always(rules, facts, finding, &ctx, &mut plan);
+    if !low {
+        return Some(plan);
+    }
+    let weight = dosing_weight(rules, facts, &ctx);
+    let urgent = finding.is_symptomatic() || finding.grade.as_ref().is_some_and(|g| g.severity == IssueSeverity::High);
+    let mg_low =
+        workup.and_then(|w| w.readings.labs.get(&Analyte::Magnesium)).is_some_and(|r| r.outcome == LabOutcome::Low);
+
+    match &weight {
+        Err(why) => {
+            plan.issues.push(SafetyIssue {
+                key: "weight",
+                act_code: Some(("DOSE", "Dosage problem")),
+                severity: IssueSeverity::High,
+                title: "No weight-based dose".into(),
+                detail: format!("No weight-based dose is proposed. {why}"),
+                implicated: facts.of(Analyte::BodyWeight).first().map(|w| vec![w.source.clone()]).unwrap_or_default(),
+                mitigation:
+                    "Record a current, measured weight; doses are proposed once it is plausible for the child's age."
+                        .into(),
+            });
+        }
+        Ok(w) => {
+            if mg_low && let Some(p) = magnesium(rules, &ctx, w) {
+                plan.proposals.push(p);
+            }
+            if urgent {
+                let access = facts.vascular_access;
+                if let Some(p) = bolus(rules, &ctx, w) {
+                    plan.proposals.push(p);
+                }
+                if let Some(p) = infusion(rules, facts, &ctx, w, &mut plan.issues) {
+                    plan.proposals.push(p);
+                }
+                if access == VascularAccess::Central {
+                    if let Some(p) = chloride(rules, &ctx, w) {
+                        plan.proposals.push(p);
+                    }
+                } else {
+                    plan.notes.push("Calcium chloride is not proposed: it is for a central line only (it irritates veins and causes necrosis if it extravasates), and no central line is recorded.".into());
+                }
+            } else if let Some(p) = oral(rules, &ctx, w) {
+                plan.notes.push("Asymptomatic and not severe: oral calcium, no IV calcium.".into());
+                plan.proposals.push(p);
+            }
+        }
+    }
+    if let Some(w) = workup {
+        vitamin_d(rules, &ctx, w, &mut plan);
+    }
+    plan.notes.push(t.vitamin_d.diet_advice.clone());
+    safety_with_proposals(rules, facts, finding, &ctx, &mut plan);
+    plan.weight = weight.ok();
+    Some(plan)
+}
+
+fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
+    let b = &rules.treatment.bolus;
+    let adm = &rules.calcium_gluconate_administration;
+    let c = chosen(ctx, &b.chosen)?;
+    let d = dose_source(rules, &c.dose_source)?;
+    let p = product(rules, &b.product)?;
+    let per_ml = p.salt_mg?;
+    let per_kg = if d.unit == "mL/kg" { pick(d, c.pick) * per_ml } else { pick(d, c.pick) };
+    let (raw, how) = dose_for(d, per_kg, w.kg);
+    let cap = cap_of(c, d);
+    let dose = raw.min(cap.as_ref().map_or(f64::INFINITY, |c| c.0));
+    let ml = dose / per_ml;
+    let peripheral_max = adm.bolus_dilution_mg_per_ml[1];
+    let max_rate = adm.max_bolus_rate_pediatric_mg_per_min;
+    let final_ml = dose / peripheral_max;
+    let diluent_ml = (final_ml - ml).max(0.0);
+    let minutes = b.min_minutes.max(dose / max_rate);
+    let diluent =
+        rules.treatment.diluents.iter().find(|x| x.id == b.diluent).map_or(b.diluent.as_str(), |x| x.label.as_str());
+    let capped = cap_text(&cap, dose < raw, "mg");
+    let text = format!(
+        "{how} = {} mg{capped} = {} mL of {} ({}); dilute with {} mL {diluent} to {} mL ({} mg/mL, the label's bolus dilution is {}-{} mg/mL); give over at least {} min ({}) and no faster than {} mg/min ({}). {} Diluent: {}.",
+        num_trim(dose),
+        num_trim(ml),
+        p.label,
+        elemental_text(p, ml),
+        num_trim(diluent_ml),
+        num_trim(final_ml),
+        num_trim(peripheral_max),
+        num_trim(adm.bolus_dilution_mg_per_ml[0]),
+        num_trim(adm.bolus_dilution_mg_per_ml[1]),
+        num_trim(minutes.ceil()),
+        b.min_minutes_source,
+        num_trim(max_rate),
+        adm.source,
+        b.monitoring,
+        b.diluent_reason
+    );
+    Some(MedProposal {
+        key: "calcium-bolus",
+        title: "IV calcium gluconate bolus".into(),
+        product: p.clone(),
+        text,
+        dose: Some(Qty { value: round_to(dose, 0.1), unit: "mg" }),
+        rate: Some(Qty { value: round_to(dose / minutes, 0.1), unit: "mg/min" }),
+        per_day: None,
+        days: None,
+        max_per_day: None,
+        route: Route::Iv,
+        sources: sources_shown(rules, d, &b.also_shown, ctx),
+        alternative: false,
+        specialist: false,
+    })
+}
+
+fn given_last_24h(facts: &Facts) -> (f64, Vec<Source>, Vec<Source>) {
+    let mut mg = 0.0;
+    let mut counted = Vec::new();
+    let mut uncounted = Vec::new();
+    for e in events_in(facts, "calcium_preparations", EventKind::Medication) {
+        if e.source.resource_type != "MedicationAdministration" {
+            continue;
+        }
+        let recent = e.when.is_some_and(|w| facts.now - w.latest <= 86_400);
+        if !recent {
+            continue;
+        }
+        match &e.dose_mg {
+            Some(v) => {
+                mg += v;
+                counted.push(e.source.clone());
+            }
+            None => uncounted.push(e.source.clone()),
+        }
+    }
+    (mg, counted, uncounted)
+}
+
+fn infusion(
+    rules: &RuleSet,
+    facts: &Facts,
+    ctx: &Context,
+    w: &Weight,
+    issues: &mut Vec<SafetyIssue>,
+) -> Option<MedProposal> {
+    let inf = &rules.treatment.infusion;
+    let c = chosen(ctx, &inf.chosen)?;
+    let d = dose_source(rules, &c.dose_source)?;
+    let p = product(rules, &inf.product)?;
+    let per_ml = p.salt_mg?;
+    let per_kg_h = pick(d, c.pick);
+    let conc = rules.calcium_gluconate_administration.continuous_dilution_mg_per_ml[1];
+    let mg_h = (w.kg * per_kg_h).min(cap_of(c, d).map_or(f64::INFINITY, |c| c.0));
+    let ml_h = round_to(mg_h / conc, inf.pump_resolution_ml_per_h);
+    let mg_h_given = ml_h * conc;
+    // Daily maximum: the chosen source's upper rate over 24 h (derived).
+    let daily_max = d.high * 24.0 * w.kg;
+    let (given, counted, uncounted) = given_last_24h(facts);
+    let dilution_text = format!(
+        "the label's continuous dilution is {}-{} mg/mL",
+        num_trim(rules.calcium_gluconate_administration.continuous_dilution_mg_per_ml[0]),
+        num_trim(conc)
+    );
+    let mut text = format!(
+        "{} kg x {} mg/kg/h = {} mg/h; at {} mg/mL ({}; {} mL of {} made up to each 10 mL with diluent) = {} mL/h, rounded to the pump's {} mL/h ({}) = {} mg/h. Over 24 h: {} mg. {}",
+        num_trim(w.kg),
+        num_trim(per_kg_h),
+        num_trim(mg_h),
+        num_trim(conc),
+        dilution_text,
+        num_trim(10.0 * conc / per_ml),
+        p.label,
+        num_trim(mg_h / conc),
+        num_trim(inf.pump_resolution_ml_per_h),
+        inf.pump_source,
+        num_trim(mg_h_given),
+        num_trim(mg_h_given * 24.0),
+        inf.monitoring
+    );
+    if !counted.is_empty() || !uncounted.is_empty() {
+        text.push_str(&format!(
+            " Already given in the last 24 h: {} mg recorded in {} administration(s){}.",
+            num_trim(given),
+            counted.len(),
+            if uncounted.is_empty() {
+                String::new()
+            } else {
+                format!("; {} more without a dose in mg were not counted", uncounted.len())
+            }
+        ));
+    }
+    if given + mg_h_given * 24.0 > daily_max {
+        issues.push(SafetyIssue {
+            key: "daily-maximum",
+            act_code: Some(("DOSEH", "High Dose Alert")),
+            severity: IssueSeverity::High,
+            title: "Daily maximum of IV calcium gluconate".into(),
+            detail: format!(
+                "Already given in 24 h ({} mg) plus the proposed infusion over 24 h ({} mg) exceeds the daily maximum {} mg/kg/h x 24 h x {} kg = {} mg (the upper rate of {}, over 24 h).",
+                num_trim(given),
+                num_trim(mg_h_given * 24.0),
+                num_trim(d.high),
+                num_trim(w.kg),
+                num_trim(daily_max),
+                d.source
+            ),
+            implicated: counted,
+            mitigation: "Lower the infusion rate or shorten it, check ionized calcium, and review with the treating clinician.".into(),
+        });
+    }
+    Some(MedProposal {
+        key: "calcium-infusion",
+        title: "Continuous IV calcium gluconate (after the bolus)".into(),
+        product: p.clone(),
+        text,
+        dose: None,
+        rate: Some(Qty { value: ml_h, unit: "mL/h" }),
+        per_day: None,
+        days: None,
+        max_per_day: Some(Qty { value: round_to(daily_max, 1.0), unit: "mg" }),
+        route: Route::Iv,
+        sources: sources_shown(rules, d, &inf.also_shown, ctx),
+        alternative: false,
+        specialist: false,
+    })
+}
+
+fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
+    let ch = &rules.treatment.chloride;
+    let (rate_source, rate) = fact(rules, "calcium_chloride_rate_and_vein");
+    let max_rate_ml_per_min = rate.unwrap_or(1.0);
+    let c = chosen(ctx, &ch.chosen)?;
+    let d = dose_source(rules, &c.dose_source)?;
+    let p = product(rules, &ch.product)?;
+    let per_ml = p.salt_mg?;
+    let per_kg = if d.unit == "mL/kg" { pick(d, c.pick) * per_ml } else { pick(d, c.pick) };
+    let (raw, how) = dose_for(d, per_kg, w.kg);
+    let cap = cap_of(c, d);
+    let dose = raw.min(cap.as_ref().map_or(f64::INFINITY, |c| c.0));
+    let ml = dose / per_ml;
+    let minutes = (ml / max_rate_ml_per_min).max(1.0);
+    let capped = cap_text(&cap, dose < raw, "mg");
+    let text = format!(
+        "Central line only. {how} = {} mg calcium chloride{capped} = {} mL of {} ({}); no faster than {} mL/min ({}), so over at least {} min. Calcium chloride irritates veins and causes tissue necrosis and sloughing if it extravasates.",
+        num_trim(dose),
+        num_trim(ml),
+        p.label,
+        elemental_text(p, ml),
+        num_trim(max_rate_ml_per_min),
+        rate_source,
+        num_trim(minutes.ceil())
+    );
+    Some(MedProposal {
+        key: "calcium-chloride",
+        title: "Alternative: IV calcium chloride via the central line (instead of the gluconate bolus)".into(),
+        product: p.clone(),
+        text,
+        dose: Some(Qty { value: round_to(dose, 0.1), unit: "mg" }),
+        rate: Some(Qty { value: max_rate_ml_per_min, unit: "mL/min" }),
+        per_day: None,
+        days: None,
+        max_per_day: None,
+        route: Route::Iv,
+        sources: sources_shown(rules, d, &ch.also_shown, ctx),
+        alternative: true,
+        specialist: false,
+    })
+}
+
+fn oral(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
+    let o = &rules.treatment.oral;
+    let c = chosen(ctx, &o.chosen)?;
+    let d = dose_source(rules, &c.dose_source)?;
+    let tablets = ctx.within(&crate::rules::model::AgeSpan {
+        from: o.tablets_from,
+        until: crate::rules::model::AgeBound { value: 200, unit: crate::rules::model::AgeUnit::Years },
+    }) == Some(true);
+    let p = product(rules, if tablets { &o.tablet_product } else { &o.liquid_product })?;
+    let per_unit = p.elemental_mg?;
+    let per_kg_day = pick(d, c.pick);
+    let raw_day = w.kg * per_kg_day;
+    let limit = o
+        .daily_limits
+        .iter()
+        .find(|l| ctx.within(&l.applies) == Some(true))
+        .and_then(|l| rules.safety_sources.get(&l.safety_source))
+        .and_then(|s| Some((s.threshold?, s.source.as_str())));
+    let cap = limit.map_or(f64::INFINITY, |l| l.0);
+    let day = raw_day.min(cap);
+    let per_dose = day / f64::from(o.doses_per_day);
+    let (amount, unit_text, given_per_dose) = if p.strength_per == "mL" {
+        let ml = round_to(per_dose / per_unit, o.liquid_round_ml).max(o.liquid_round_ml);
+        (ml, "mL".to_owned(), ml * per_unit)
+    } else {
+        let parts = f64::from(p.divisible_into.unwrap_or(1).max(1));
+        let n = ((per_dose / per_unit) * parts).round().max(1.0) / parts;
+        (n, p.strength_per.clone(), n * per_unit)
+    };
+    let capped = match limit {
+        Some((max, source)) if day < raw_day => {
+            format!(" capped at the daily upper limit {} mg/day ({source})", num_trim(max))
+        }
+        _ => String::new(),
+    };
+    let text = format!(
+        "{} kg x {} mg/kg/day elemental calcium = {} mg/day{capped}, in {} doses ({}) = {} mg per dose = {} {unit_text} of {} ({} mg elemental calcium per {}), giving {} mg elemental per dose ({} mg/day). {}",
+        num_trim(w.kg),
+        num_trim(per_kg_day),
+        num_trim(day),
+        o.doses_per_day,
+        o.doses_source,
+        num_trim(per_dose),
+        num_trim(amount),
+        p.label,
+        num_trim(per_unit),
+        p.strength_per,
+        num_trim(given_per_dose),
+        num_trim(given_per_dose * f64::from(o.doses_per_day)),
+        o.advice
+    );
+    Some(MedProposal {
+        key: "oral-calcium",
+        title: "Oral elemental calcium".into(),
+        product: p.clone(),
+        text,
+        dose: Some(Qty { value: round_to(amount, 0.01), unit: if p.strength_per == "mL" { "mL" } else { "{tbl}" } }),
+        rate: None,
+        per_day: Some(o.doses_per_day),
+        days: None,
+        max_per_day: limit.map(|l| Qty { value: l.0, unit: "mg" }),
+        route: Route::Oral,
+        sources: sources_shown(rules, d, &o.also_shown, ctx),
+        alternative: false,
+        specialist: false,
+    })
+}
+
+fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
+    let m = &rules.treatment.magnesium;
+    let adm = &rules.magnesium_sulfate_administration;
+    let c = chosen(ctx, &m.chosen)?;
+    let d = dose_source(rules, &c.dose_source)?;
+    let p = product(rules, &m.product)?;
+    let per_ml = p.salt_mg?;
+    let per_kg = if d.unit == "mL/kg" { pick(d, c.pick) * per_ml } else { pick(d, c.pick) };
+    let (raw, how) = dose_for(d, per_kg, w.kg);
+    let cap = cap_of(c, d);
+    let dose = raw.min(cap.as_ref().map_or(f64::INFINITY, |c| c.0));
+    let ml = dose / per_ml;
+    let final_ml = dose / adm.max_iv_concentration_mg_per_ml;
+    let minutes = m.minutes.max(dose / adm.max_iv_rate_mg_per_min);
+    let capped = cap_text(&cap, dose < raw, "mg");
+    let text = format!(
+        "Give magnesium first: calcium will not hold while magnesium is low. {how} = {} mg magnesium sulfate{capped} = {} mL of {} ({}); dilute to {} mL or more (at most {} mg/mL) and give over {} min ({}; no faster than {} mg/min; {}). {}",
+        num_trim(dose),
+        num_trim(ml),
+        p.label,
+        elemental_text(p, ml),
+        num_trim(final_ml),
+        num_trim(adm.max_iv_concentration_mg_per_ml),
+        num_trim(minutes.ceil()),
+        m.minutes_source,
+        num_trim(adm.max_iv_rate_mg_per_min),
+        adm.source,
+        m.repeat
+    );
+    Some(MedProposal {
+        key: "magnesium",
+        title: "IV magnesium sulfate (first)".into(),
+        product: p.clone(),
+        text,
+        dose: Some(Qty { value: round_to(dose, 0.1), unit: "mg" }),
+        rate: Some(Qty { value: round_to(dose / minutes, 0.1), unit: "mg/min" }),
+        per_day: None,
+        days: None,
+        max_per_day: None,
+        route: Route::Iv,
+        sources: sources_shown(rules, d, &m.also_shown, ctx),
+        alternative: false,
+        specialist: false,
+    })
+}
+
+fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, plan: &mut TreatmentPlan) {
+    let v = &rules.treatment.vitamin_d;
+    let label_of = |id: &str| w.causes.iter().find(|c| c.id == id).map(|c| c.label);
+    if label_of("vitamin_d_deficiency") == Some(CauseLabel::Likely)
+        && let (Some(c), Some(p)) = (chosen(ctx, &v.chosen), product(rules, &v.cholecalciferol_product))
+        && let (Some(d), Some(iu)) = (dose_source(rules, &c.dose_source), p.iu)
+    {
+        let per_day = pick(d, c.pick).min(c.max_single.unwrap_or(f64::INFINITY));
+        let amount = per_day / iu;
+        plan.proposals.push(MedProposal {
+                    key: "cholecalciferol",
+                    title: "Cholecalciferol (vitamin D3) for nutritional deficiency".into(),
+                    product: p.clone(),
+                    text: format!(
+                        "{} IU once daily = {} {} of {} ({} IU per {}) for {} days ({}), then maintenance. Give with the calcium.",
+                        num_trim(per_day),
+                        num_trim(amount),
+                        p.strength_per,
+                        p.label,
+                        num_trim(iu),
+                        p.strength_per,
+                        v.treatment_days,
+                        v.treatment_source
+                    ),
+                    dose: Some(Qty { value: per_day, unit: "[iU]" }),
+                    rate: None,
+                    per_day: Some(1),
+                    days: Some(v.treatment_days),
+                    max_per_day: None,
+                    route: Route::Oral,
+                    sources: vec![format!("Chosen: {}", range_text(d))],
+                    alternative: false,
+                    specialist: false,
+                });
+    }
+    let specialist: Vec<String> = v
+        .calcitriol_for
+        .iter()
+        .filter(|id| label_of(id) == Some(CauseLabel::Likely))
+        .filter_map(|id| w.causes.iter().find(|c| &c.id == id).map(|c| c.name.clone()))
+        .collect();
+    if !specialist.is_empty()
+        && let Some(p) = product(rules, &v.calcitriol_product)
+    {
+        plan.proposals.push(MedProposal {
+            key: "calcitriol",
+            title: "Calcitriol: for specialist dosing".into(),
+            product: p.clone(),
+            text: format!("Likely cause: {}. {}", specialist.join("; "), v.calcitriol_note),
+            dose: None,
+            rate: None,
+            per_day: None,
+            days: None,
+            max_per_day: None,
+            route: Route::Oral,
+            sources: Vec::new(),
+            alternative: false,
+            specialist: true,
+        });
+    }
+}
+
+fn any_events(facts: &Facts, list: &str) -> Vec<Source> {
+    facts
+        .events
+        .iter()
+        .filter(|e| e.kind == EventKind::Medication && e.lists.iter().any(|l| l == list))
+        .map(|e| e.source.clone())
+        .collect()
+}
+
+/// Checks that apply whatever is proposed.
+fn safety_always(_rules: &RuleSet, facts: &Facts, finding: &CalciumFinding, _ctx: &Context, plan: &mut TreatmentPlan) {
+    // An infusion running while calcium is already normal.
+    if finding.classification != Classification::Low {
+        let running: Vec<Source> = events_in(facts, "calcium_preparations", EventKind::Medication)
+            .into_iter()
+            .filter(|e| e.source.resource_type == "MedicationAdministration" && e.in_progress)
+            .map(|e| e.source.clone())
+            .collect();
+        if !running.is_empty() {
+            plan.issues.push(SafetyIssue {
+                key: "overshoot",
+                act_code: Some(("DOSE", "Dosage problem")),
+                severity: IssueSeverity::Moderate,
+                title: "Calcium infusion running with a calcium that is not low".into(),
+                detail: format!(
+                    "A calcium infusion is in progress while the {} is {} ({} mmol/L). Risk of overshoot.",
+                    finding.measure.label(),
+                    if finding.classification == Classification::High { "high" } else { "normal" },
+                    num(finding.value_mmol_l, 2)
+                ),
+                implicated: running,
+                mitigation:
+                    "Consider stopping or weaning the infusion now that calcium is normal; recheck ionized calcium."
+                        .into(),
+            });
+        }
+    }
+}
+
+/// Checks tied to IV calcium being proposed.
+fn fact<'r>(rules: &'r RuleSet, key: &str) -> (&'r str, Option<f64>) {
+    rules.safety_sources.get(key).map_or(("(safety source missing)", None), |s| (s.source.as_str(), s.threshold))
+}
+
+fn safety_with_proposals(
+    rules: &RuleSet,
+    facts: &Facts,
+    finding: &CalciumFinding,
+    ctx: &Context,
+    plan: &mut TreatmentPlan,
+) {
+    let s = &rules.treatment.safety;
+    let iv_calcium = plan.proposals.iter().any(|p| p.route == Route::Iv && p.key.starts_with("calcium"));
+    if iv_calcium {
+        let digoxin = any_events(facts, "digoxin");
+        if !digoxin.is_empty() {
+            plan.issues.push(SafetyIssue {
+                key: "digoxin",
+                act_code: Some(("DRG", "Drug Interaction Alert")),
+                severity: IssueSeverity::High,
+                title: "Digoxin with IV calcium".into(),
+                detail: format!("Digoxin is active: raised calcium enhances digoxin and can cause arrhythmias ({}).", fact(rules, "digoxin").0),
+                implicated: digoxin,
+                mitigation: "If calcium must be given, give it slowly, in small amounts, with continuous ECG monitoring.".into(),
+            });
+        }
+        let mut precip = any_events(facts, "sodium_bicarbonate");
+        precip.extend(
+            facts
+                .events
+                .iter()
+                .filter(|e| {
+                    e.kind == EventKind::Medication
+                        && e.lists.iter().any(|l| l == "phosphate_preparations")
+                        && e.in_progress
+                })
+                .map(|e| e.source.clone()),
+        );
+        if !precip.is_empty() {
+            plan.issues.push(SafetyIssue {
+                key: "precipitation",
+                act_code: Some(("DRG", "Drug Interaction Alert")),
+                severity: IssueSeverity::High,
+                title: "Sodium bicarbonate or phosphate with IV calcium".into(),
+                detail: format!(
+                    "Calcium precipitates with bicarbonate and phosphate ({}).",
+                    fact(rules, "phosphate_bicarbonate_precipitation").0
+                ),
+                implicated: precip,
+                mitigation: "Never give them through the same line; flush thoroughly, or use a separate line.".into(),
+            });
+        }
+        let ceftriaxone = any_events(facts, "ceftriaxone");
+        let (cef_source, cef_days) = fact(rules, "ceftriaxone_neonate_contraindication");
+        let cef_days = cef_days.unwrap_or(28.0) as i64;
+        if !ceftriaxone.is_empty() && ctx.age_max.days <= cef_days {
+            plan.issues.push(SafetyIssue {
+                key: "ceftriaxone",
+                act_code: Some(("DRG", "Drug Interaction Alert")),
+                severity: IssueSeverity::High,
+                title: "Ceftriaxone in a neonate with IV calcium".into(),
+                detail: format!(
+                    "Ceftriaxone is contraindicated in neonates up to {} days old who need IV calcium, even through separate lines or at different times ({}).",
+                    cef_days, cef_source
+                ),
+                implicated: ceftriaxone,
+                mitigation: "Use another antibiotic, or do not give IV calcium-containing solutions; discuss with the treating clinician.".into(),
+            });
+        }
+        let b = &rules.treatment.bolus;
+        let saline = rules.treatment.diluents.iter().find(|d| d.id == b.diluent).is_some_and(|d| d.saline);
+        if saline && b.diluent != b.preferred_diluent {
+            plan.issues.push(SafetyIssue {
+                key: "saline-diluent",
+                act_code: None,
+                severity: IssueSeverity::Low,
+                title: "Saline chosen as diluent".into(),
+                detail: format!("The site's diluent is 0.9% sodium chloride while dextrose is preferred ({}). Saline is a compatible diluent on the label.", s.saline_source),
+                implicated: Vec::new(),
+                mitigation: "Use 5% or 10% dextrose where possible.".into(),
+            });
+        }
+        match facts.vascular_access {
+            VascularAccess::Arterial | VascularAccess::UmbilicalArterial => plan.issues.push(SafetyIssue {
+                key: "arterial-line",
+                act_code: None,
+                severity: IssueSeverity::High,
+                title: "Arterial line: never give calcium".into(),
+                detail: format!("The recorded line is arterial. Calcium must never be given intra-arterially ({}).", fact(rules, "no_intra_arterial_or_uac").0),
+                implicated: Vec::new(),
+                mitigation: "Give IV calcium through a secure venous line; confirm the tip position of any umbilical venous catheter.".into(),
+            }),
+            VascularAccess::Peripheral | VascularAccess::Unknown => plan.issues.push(SafetyIssue {
+                key: "extravasation",
+                act_code: None,
+                severity: IssueSeverity::Moderate,
+                title: "Peripheral IV calcium: extravasation risk".into(),
+                detail: format!(
+                    "IV calcium is proposed {}. Calcium causes calcinosis and tissue necrosis if it extravasates ({}); calcium chloride is not proposed for a peripheral line.",
+                    if facts.vascular_access == VascularAccess::Peripheral { "through a peripheral line" } else { "and no line is recorded (send vascularAccess to say which)" },
+                    fact(rules, "extravasation_calcinosis").0
+                ),
+                implicated: Vec::new(),
+                mitigation: format!(
+                    "Use a secure, freshly checked line; dilute as shown; watch the site. Avoid scalp veins. In neonates stop the bolus if the heart rate falls below {} bpm ({}).",
+                    num_trim(fact(rules, "neonatal_bradycardia_stop").1.unwrap_or(f64::NAN)),
+                    fact(rules, "neonatal_bradycardia_stop").0
+                ),
+            }),
+            _ => {}
+        }
+        if let Some(q) = finding.qtc.as_ref().filter(|q| q.prolonged) {
+            plan.issues.push(SafetyIssue {
+                key: "qtc",
+                act_code: None,
+                severity: IssueSeverity::Moderate,
+                title: "Prolonged QTc".into(),
+                detail: format!("QTc {} ms (> {} ms).", num(q.value_ms, 0), num(q.threshold_ms, 0)),
+                implicated: vec![q.source.clone()],
+                mitigation: "Give IV calcium under continuous ECG and heart-rate monitoring.".into(),
+            });
+        }
+    }
+    // A high calcium-phosphate product before giving calcium.
+    let any_calcium = plan.proposals.iter().any(|p| p.key.starts_with("calcium") || p.key == "oral-calcium");
+    if any_calcium {
+        let total = facts.of(Analyte::CalciumTotal).into_iter().next();
+        let phosphate = facts.of(Analyte::Phosphate).into_iter().next();
+        if let (Some(ca), Some(p)) = (total, phosphate) {
+            let ca_mass = rules.analyte(Analyte::CalciumTotal).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
+            let p_mass = rules.analyte(Analyte::Phosphate).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
+            let product = (ca.value * ca_mass / 10.0) * (p.value * p_mass / 10.0);
+            let key = if ctx.age_max.years < 12 { "ca_x_p_under_12y" } else { "ca_x_p_over_12y" };
+            let (caxp_source, limit) = fact(rules, key);
+            let limit = limit.unwrap_or(f64::INFINITY);
+            if product > limit {
+                plan.issues.push(SafetyIssue {
+                    key: "caxp",
+                    act_code: None,
+                    severity: IssueSeverity::Moderate,
+                    title: "High calcium-phosphate product".into(),
+                    detail: format!(
+                        "Total calcium {} mg/dL x phosphate {} mg/dL = {} mg2/dL2, above {} ({}). Giving calcium risks calcium-phosphate precipitation.",
+                        num(ca.value * ca_mass / 10.0, 2),
+                        num(p.value * p_mass / 10.0, 2),
+                        num(product, 0),
+                        num_trim(limit),
+                        caxp_source
+                    ),
+                    implicated: vec![ca.source.clone(), p.source.clone()],
+                    mitigation: "Lower the phosphate first where possible and give calcium cautiously, with specialist advice.".into(),
+                });
+            }
+        }
+    }
+}

@@ -1,0 +1,452 @@
+//! Typed rule data for treatment proposals (issue 4): formulary products,
+//! published dose ranges, the site's choices among them, growth references
+//! for weight plausibility, and safety thresholds.
+
+use serde::Deserialize;
+
+use super::model::AgeSpan;
+
+/// A coding with the listing it was verified in.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SourcedCoding {
+    /// System.
+    pub system: String,
+    /// Code.
+    pub code: String,
+    /// Display.
+    pub display: String,
+    /// Where verified.
+    pub source: String,
+}
+
+/// A formulary product.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Product {
+    /// Id.
+    pub id: String,
+    /// Label.
+    pub label: String,
+    /// Ingredient id.
+    pub ingredient: String,
+    /// Salt as labelled.
+    #[serde(default)]
+    pub salt: Option<String>,
+    /// Formula the elemental figure corresponds to.
+    #[serde(default)]
+    pub salt_formula: Option<String>,
+    /// Dose form.
+    pub form: String,
+    /// iv | oral.
+    pub route: String,
+    /// mL | tablet | capsule | drop.
+    pub strength_per: String,
+    /// Salt mg per unit.
+    #[serde(default)]
+    pub salt_mg: Option<f64>,
+    /// calcium | magnesium.
+    #[serde(default)]
+    pub elemental: Option<String>,
+    /// Elemental mg per unit.
+    #[serde(default)]
+    pub elemental_mg: Option<f64>,
+    /// mEq per unit.
+    #[serde(default)]
+    pub meq: Option<f64>,
+    /// IU per unit (cholecalciferol).
+    #[serde(default)]
+    pub iu: Option<f64>,
+    /// Micrograms per unit (calcitriol).
+    #[serde(default)]
+    pub mcg: Option<f64>,
+    /// Tablets: parts a tablet can be split into (1 = whole only).
+    #[serde(default)]
+    pub divisible_into: Option<u32>,
+    /// Free text.
+    #[serde(default)]
+    pub osmolarity_note: Option<String>,
+    /// RxNorm / ATC codes.
+    #[serde(default)]
+    pub codes: Vec<SourcedCoding>,
+    /// Label source.
+    pub source: String,
+    /// Confidence.
+    pub confidence: String,
+    /// Note.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// A published dose range.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct DoseSource {
+    /// Id.
+    pub id: String,
+    /// Drug (ingredient id).
+    pub drug: String,
+    /// bolus | infusion | oral_daily | magnesium | cholecalciferol | calcitriol | calcium_chloride_bolus ...
+    pub kind: String,
+    /// Ages it applies to.
+    pub applies: AgeSpan,
+    /// Low end.
+    pub low: f64,
+    /// High end.
+    pub high: f64,
+    /// Unit as written (mg/kg, mg/kg/h, mg/kg/d, IU/d, mL/kg ...).
+    pub unit: String,
+    /// Cap per dose.
+    #[serde(default)]
+    pub max_single: Option<f64>,
+    /// Unit of the cap.
+    #[serde(default)]
+    pub max_single_unit: Option<String>,
+    /// Repeat text.
+    #[serde(default)]
+    pub repeat: Option<String>,
+    /// Source.
+    pub source: String,
+    /// Confidence.
+    pub confidence: String,
+    /// Note.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// Which end of a range the proposal uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Pick {
+    /// The low end (the conservative default).
+    Low,
+    /// The middle.
+    Mid,
+    /// The high end.
+    High,
+}
+
+/// The dose source chosen for an age span.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Chosen {
+    /// Ages.
+    pub applies: AgeSpan,
+    /// Id of a `dose_sources` entry.
+    pub dose_source: String,
+    /// End of its range to propose.
+    pub pick: Pick,
+    /// Cap per dose in the regimen's dose unit (salt mg, IU ...), for these ages.
+    #[serde(default)]
+    pub max_single: Option<f64>,
+    /// Source of the cap.
+    #[serde(default)]
+    pub max_single_source: Option<String>,
+}
+
+/// Dosing weight policy.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct WeightPolicy {
+    /// A weight older than this (days) is stale.
+    pub max_age_days: f64,
+    /// Source.
+    pub source: String,
+}
+
+/// A diluent.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Diluent {
+    /// Id.
+    pub id: String,
+    /// Label.
+    pub label: String,
+    /// Contains sodium chloride (warned against when the site prefers dextrose).
+    pub saline: bool,
+}
+
+/// IV calcium gluconate bolus.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BolusPolicy {
+    /// Product id.
+    pub product: String,
+    /// Choices by age.
+    pub chosen: Vec<Chosen>,
+    /// Other dose sources shown beside the proposal.
+    pub also_shown: Vec<String>,
+    /// Shortest duration, minutes.
+    pub min_minutes: f64,
+    /// Source of the duration.
+    pub min_minutes_source: String,
+    /// Diluent id the site uses.
+    pub diluent: String,
+    /// Why that diluent.
+    pub diluent_reason: String,
+    /// Diluent the site prefers (a different choice is warned).
+    pub preferred_diluent: String,
+    /// Monitoring text.
+    pub monitoring: String,
+}
+
+/// Continuous calcium gluconate infusion.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct InfusionPolicy {
+    /// Product id.
+    pub product: String,
+    /// Choices by age (mg/kg/h).
+    pub chosen: Vec<Chosen>,
+    /// Other dose sources shown.
+    pub also_shown: Vec<String>,
+    /// Pump resolution, mL/h.
+    pub pump_resolution_ml_per_h: f64,
+    /// Source.
+    pub pump_source: String,
+    /// Monitoring and stop text.
+    pub monitoring: String,
+}
+
+/// Calcium chloride (central line alternative).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChloridePolicy {
+    /// Product id.
+    pub product: String,
+    /// Choices by age.
+    pub chosen: Vec<Chosen>,
+    /// Other dose sources shown.
+    pub also_shown: Vec<String>,
+}
+
+/// Oral calcium.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct OralPolicy {
+    /// Product for children who take liquids.
+    pub liquid_product: String,
+    /// Product for children who take tablets.
+    pub tablet_product: String,
+    /// Tablets from this age.
+    pub tablets_from: super::model::AgeBound,
+    /// Source / rationale.
+    pub product_source: String,
+    /// Choices by age (elemental mg/kg/day).
+    pub chosen: Vec<Chosen>,
+    /// Other dose sources shown.
+    pub also_shown: Vec<String>,
+    /// Doses per day.
+    pub doses_per_day: u32,
+    /// Source.
+    pub doses_source: String,
+    /// Liquid doses rounded to this many mL.
+    pub liquid_round_ml: f64,
+    /// Daily upper limits of elemental calcium by age.
+    pub daily_limits: Vec<LimitByAge>,
+    /// Timing and advice text.
+    pub advice: String,
+}
+
+/// IV magnesium sulfate.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct MagnesiumPolicy {
+    /// Product id.
+    pub product: String,
+    /// Choices by age (salt mg/kg).
+    pub chosen: Vec<Chosen>,
+    /// Other dose sources shown.
+    pub also_shown: Vec<String>,
+    /// Duration, minutes (the proposal's infusion time).
+    pub minutes: f64,
+    /// Source.
+    pub minutes_source: String,
+    /// Repeat text.
+    pub repeat: String,
+}
+
+/// Vitamin D.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct VitaminDPolicy {
+    /// Cholecalciferol product id.
+    pub cholecalciferol_product: String,
+    /// Treatment choices by age (IU/day).
+    pub chosen: Vec<Chosen>,
+    /// Days of treatment.
+    pub treatment_days: u32,
+    /// Source.
+    pub treatment_source: String,
+    /// Calcitriol product id.
+    pub calcitriol_product: String,
+    /// Cause ids for which calcitriol (specialist) is proposed instead.
+    pub calcitriol_for: Vec<String>,
+    /// Text for the specialist flag.
+    pub calcitriol_note: String,
+    /// Diet advice.
+    pub diet_advice: String,
+}
+
+/// Safety settings that are the site's own (the published facts are in `safety_sources`).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SafetyPolicy {
+    /// Why dextrose is preferred over saline as diluent.
+    pub saline_source: String,
+}
+
+/// A published safety fact.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SafetySource {
+    /// The fact.
+    pub text: String,
+    /// Its threshold, when numeric.
+    #[serde(default)]
+    pub threshold: Option<f64>,
+    /// Unit of the threshold.
+    #[serde(default)]
+    pub unit: Option<String>,
+    /// Source.
+    pub source: String,
+    /// Confidence.
+    pub confidence: String,
+    /// Note.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// Calcium gluconate administration limits (label).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct GluconateAdministration {
+    /// Bolus rate limit, children including neonates, mg/min.
+    pub max_bolus_rate_pediatric_mg_per_min: f64,
+    /// Bolus rate limit, adults, mg/min.
+    pub max_bolus_rate_adult_mg_per_min: f64,
+    /// Bolus dilution range, mg/mL.
+    pub bolus_dilution_mg_per_ml: [f64; 2],
+    /// Continuous infusion dilution range, mg/mL.
+    pub continuous_dilution_mg_per_ml: [f64; 2],
+    /// Diluents on the label.
+    pub diluents: Vec<String>,
+    /// Use right after dilution.
+    pub use_immediately_after_dilution: bool,
+    /// Calcium monitoring interval during intermittent use, h.
+    pub monitor_calcium_intermittent_h: [f64; 2],
+    /// Calcium monitoring interval during continuous use, h.
+    pub monitor_calcium_continuous_h: [f64; 2],
+    /// Source.
+    pub source: String,
+    /// Confidence.
+    pub confidence: String,
+    /// Note.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// Magnesium sulfate administration limits (label).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct MagnesiumAdministration {
+    /// mg/mL.
+    pub max_iv_concentration_mg_per_ml: f64,
+    /// %.
+    pub max_iv_concentration_pct: f64,
+    /// mg/min.
+    pub max_iv_rate_mg_per_min: f64,
+    /// Diluents.
+    pub diluents: Vec<String>,
+    /// IM dilution in children, %.
+    pub children_im_must_be_diluted_to_pct: f64,
+    /// Source.
+    pub source: String,
+    /// Confidence.
+    pub confidence: String,
+    /// Note.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// SNOMED CT route codes.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct Routes {
+    /// Intravenous.
+    pub iv: SourcedCoding,
+    /// Oral.
+    pub oral: SourcedCoding,
+}
+
+/// An age span and the `safety_sources` entry holding its limit.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct LimitByAge {
+    /// Ages.
+    pub applies: AgeSpan,
+    /// Key into `safety_sources` (its threshold is the limit).
+    pub safety_source: String,
+}
+
+/// The treatment policy.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TreatmentPolicy {
+    /// Route codes.
+    pub routes: Routes,
+    /// Weight.
+    pub weight: WeightPolicy,
+    /// Diluents.
+    pub diluents: Vec<Diluent>,
+    /// Bolus.
+    pub bolus: BolusPolicy,
+    /// Infusion.
+    pub infusion: InfusionPolicy,
+    /// Chloride.
+    pub chloride: ChloridePolicy,
+    /// Oral.
+    pub oral: OralPolicy,
+    /// Magnesium.
+    pub magnesium: MagnesiumPolicy,
+    /// Vitamin D.
+    pub vitamin_d: VitaminDPolicy,
+    /// Safety.
+    pub safety: SafetyPolicy,
+}
+
+/// One weight-for-age LMS table.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct GrowthReference {
+    /// Id.
+    pub id: String,
+    /// Label.
+    pub label: String,
+    /// male | female.
+    pub sex: String,
+    /// weight.
+    pub measure: String,
+    /// First age, months.
+    pub from_months: f64,
+    /// Last age, months.
+    pub until_months: f64,
+    /// Source.
+    pub source: String,
+    /// Rows [age_months, L, M, S].
+    pub rows: Vec<[f64; 4]>,
+}
+
+/// Growth policy.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct GrowthPolicy {
+    /// WHO below this age, CDC from it.
+    pub use_who_until_months: f64,
+    /// Source.
+    pub use_who_until_source: String,
+    /// |z| above this is implausible.
+    pub implausible_abs_z: f64,
+    /// Source.
+    pub implausible_source: String,
+}
