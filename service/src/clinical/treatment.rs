@@ -175,12 +175,16 @@ pub fn num_trim(v: f64) -> String {
     s.trim_end_matches('0').trim_end_matches('.').to_owned()
 }
 
-fn cap_text(cap: &Option<(f64, String)>, capped: bool, unit: &str) -> String {
-    match (capped, cap) {
-        (true, Some((max, source))) => {
-            format!(" capped at the maximum single dose {} {unit} ({source})", num_trim(*max))
-        }
-        _ => String::new(),
+/// "750 mg", or "1050 mg, capped at the maximum single dose 1000 mg (source), so 1000 mg".
+fn dose_phrase(raw: f64, dose: f64, cap: &Option<(f64, String)>, unit: &str) -> String {
+    match cap {
+        Some((max, source)) if dose < raw => format!(
+            "{} {unit}, capped at the maximum single dose {} {unit} ({source}), so {} {unit}",
+            num_trim(raw),
+            num_trim(*max),
+            num_trim(dose)
+        ),
+        _ => format!("{} {unit}", num_trim(dose)),
     }
 }
 
@@ -336,10 +340,9 @@ fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     let minutes = b.min_minutes.max(dose / max_rate);
     let diluent =
         rules.treatment.diluents.iter().find(|x| x.id == b.diluent).map_or(b.diluent.as_str(), |x| x.label.as_str());
-    let capped = cap_text(&cap, dose < raw, "mg");
+    let phrase = dose_phrase(raw, dose, &cap, "mg");
     let text = format!(
-        "{how} = {} mg{capped} = {} mL of {} ({}); dilute with {} mL {diluent} to {} mL ({} mg/mL, the label's bolus dilution is {}-{} mg/mL); give over at least {} min ({}) and no faster than {} mg/min ({}). {} Diluent: {}.",
-        num_trim(dose),
+        "{how} = {phrase} = {} mL of {} ({}); dilute with {} mL {diluent} to {} mL ({} mg/mL, the label's bolus dilution is {}-{} mg/mL); give over at least {} min ({}) and no faster than {} mg/min ({}). {} Diluent: {}.",
         num_trim(ml),
         p.label,
         elemental_text(p, ml),
@@ -498,10 +501,9 @@ fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     let dose = raw.min(cap.as_ref().map_or(f64::INFINITY, |c| c.0));
     let ml = dose / per_ml;
     let minutes = (ml / max_rate_ml_per_min).max(1.0);
-    let capped = cap_text(&cap, dose < raw, "mg");
+    let phrase = dose_phrase(raw, dose, &cap, "mg");
     let text = format!(
-        "Central line only. {how} = {} mg calcium chloride{capped} = {} mL of {} ({}); no faster than {} mL/min ({}), so over at least {} min. Calcium chloride irritates veins and causes tissue necrosis and sloughing if it extravasates.",
-        num_trim(dose),
+        "Central line only. {how} = {phrase} calcium chloride = {} mL of {} ({}); no faster than {} mL/min ({}), so over at least {} min. Calcium chloride irritates veins and causes tissue necrosis and sloughing if it extravasates.",
         num_trim(ml),
         p.label,
         elemental_text(p, ml),
@@ -608,10 +610,9 @@ fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> 
     let ml = dose / per_ml;
     let final_ml = dose / adm.max_iv_concentration_mg_per_ml;
     let minutes = m.minutes.max(dose / adm.max_iv_rate_mg_per_min);
-    let capped = cap_text(&cap, dose < raw, "mg");
+    let phrase = dose_phrase(raw, dose, &cap, "mg");
     let text = format!(
-        "Give magnesium first: calcium will not hold while magnesium is low. {how} = {} mg magnesium sulfate{capped} = {} mL of {} ({}); dilute to {} mL or more (at most {} mg/mL) and give over {} min ({}; no faster than {} mg/min; {}). {}",
-        num_trim(dose),
+        "Give magnesium first: calcium will not hold while magnesium is low. {how} = {phrase} magnesium sulfate = {} mL of {} ({}); dilute to {} mL or more (at most {} mg/mL) and give over {} min ({}; no faster than {} mg/min; {}). {}",
         num_trim(ml),
         p.label,
         elemental_text(p, ml),
@@ -896,5 +897,175 @@ fn safety_with_proposals(
                 });
             }
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::clinical::facts::Measurement;
+    use crate::clinical::status;
+    use crate::clinical::testing::*;
+    use crate::clinical::time::PartialDate;
+
+    fn weight(kg: f64) -> Measurement {
+        lab(Analyte::BodyWeight, kg, "kg", "wt")
+    }
+
+    fn run(rules: &RuleSet, birth: Option<PartialDate>, ionized_value: f64, kg: Option<f64>) -> TreatmentPlan {
+        let mut m = vec![ionized(ionized_value, 1, "ica")];
+        if let Some(kg) = kg {
+            m.push(weight(kg));
+        }
+        let facts = facts_of(birth, Gender::Female, m, vec![]);
+        let a = status::assess(&facts, rules);
+        plan(rules, &facts, &a.finding.expect("finding"), None).expect("a plan")
+    }
+
+    fn seven() -> Option<PartialDate> {
+        born_days_ago(7 * 365 + 30)
+    }
+
+    fn find<'p>(p: &'p TreatmentPlan, key: &str) -> &'p MedProposal {
+        p.proposals
+            .iter()
+            .find(|x| x.key == key)
+            .unwrap_or_else(|| panic!("no {key} in {:?}", p.proposals.iter().map(|x| x.key).collect::<Vec<_>>()))
+    }
+
+    #[test]
+    fn worked_example_100_mg_per_kg_for_15_kg() {
+        // Common-practice worked example: 15 kg x 100 mg/kg = 1500 mg = 15 mL of
+        // 10% calcium gluconate = 139.5 mg elemental calcium (15 mL x 9.3 mg/mL,
+        // the US label's 9.3 mg elemental per mL).
+        let mut r = rules();
+        for c in &mut r.treatment.bolus.chosen {
+            c.dose_source = "common_practice_ca_gluconate_bolus".into();
+            c.max_single = None;
+        }
+        let p = run(&r, seven(), 0.85, Some(15.0));
+        let b = find(&p, "calcium-bolus");
+        assert!(b.text.starts_with("15 kg x 100 mg/kg = 1500 mg = 15 mL of"), "{}", b.text);
+        assert!(b.text.contains("139.5 mg elemental calcium"), "{}", b.text);
+        assert_eq!(b.dose, Some(Qty { value: 1500.0, unit: "mg" }));
+        // At 50 mg/mL the bolus is made up to 30 mL; at <= 100 mg/min it takes >= 15 min.
+        assert!(b.text.contains("to 30 mL (50 mg/mL"), "{}", b.text);
+        assert!(b.text.contains("over at least 15 min"), "{}", b.text);
+    }
+
+    #[test]
+    fn default_bolus_is_50_mg_per_kg_capped_at_10_ml() {
+        let r = rules();
+        // 20 kg x 50 mg/kg = 1000 mg = the 10 mL cap exactly; 30 kg would be 1500 -> capped.
+        // A 4-month-old of 5 kg, then 7-year-olds (weights plausible for the age).
+        for (birth, kg, mg) in
+            [(born_days_ago(120), 5.0, 250.0), (seven(), 15.0, 750.0), (seven(), 20.0, 1000.0), (seven(), 30.0, 1000.0)]
+        {
+            let p = run(&r, birth, 0.85, Some(kg));
+            let b = find(&p, "calcium-bolus");
+            assert_eq!(b.dose.as_ref().map(|d| d.value), Some(mg), "{kg} kg");
+            assert_eq!(b.text.contains("capped"), kg * 50.0 > 1000.0, "{}", b.text);
+        }
+    }
+
+    #[test]
+    fn doses_rise_with_weight_until_the_cap_and_volume_times_strength_is_the_dose() {
+        // A property over a sweep of plausible weights for a 7-year-old (z within +-5).
+        let r = rules();
+        let per_ml = r.products.iter().find(|p| p.id == r.treatment.bolus.product).and_then(|p| p.salt_mg).unwrap();
+        let cap = r.treatment.bolus.chosen[1].max_single.unwrap();
+        let mut last = 0.0;
+        let mut kg = 15.0;
+        while kg <= 50.0 {
+            let p = run(&r, seven(), 0.85, Some(kg));
+            let b = find(&p, "calcium-bolus");
+            let dose = b.dose.as_ref().unwrap().value;
+            assert!(dose >= last, "dose fell at {kg} kg");
+            assert!(dose <= cap + 1e-9, "dose {dose} above the cap at {kg} kg");
+            let ml: f64 =
+                b.text.split(" mg = ").nth(1).and_then(|t| t.split(" mL").next()).and_then(|t| t.parse().ok()).unwrap();
+            assert!((ml * per_ml - dose).abs() < 0.01 * per_ml, "{kg} kg: {ml} mL x {per_ml} != {dose}");
+            let inf = find(&p, "calcium-infusion");
+            let rate = inf.rate.as_ref().unwrap().value;
+            assert!((rate * 10.0 - (rate * 10.0).round()).abs() < 1e-6, "rate {rate} not on the 0.1 mL/h grid");
+            last = dose;
+            kg += 0.7;
+        }
+    }
+
+    #[test]
+    fn infusion_rate_is_rounded_to_the_pump() {
+        // 12.1 kg x 8 mg/kg/h = 96.8 mg/h; at 10 mg/mL = 9.68 mL/h -> 9.7 mL/h.
+        let p = run(&rules(), seven(), 0.85, Some(22.1));
+        let inf = find(&p, "calcium-infusion");
+        // 22.1 x 8 = 176.8 mg/h / 10 = 17.68 -> 17.7 mL/h.
+        assert_eq!(inf.rate, Some(Qty { value: 17.7, unit: "mL/h" }));
+        assert!(inf.text.contains("17.68 mL/h, rounded"), "{}", inf.text);
+    }
+
+    #[test]
+    fn no_dose_from_a_missing_stale_or_implausible_weight() {
+        let r = rules();
+        for kg in [None, Some(95.0), Some(4.0)] {
+            let p = run(&r, seven(), 0.85, kg);
+            assert!(p.proposals.is_empty(), "{kg:?}: {:?}", p.proposals.iter().map(|x| x.key).collect::<Vec<_>>());
+            let issue = p.issues.iter().find(|i| i.key == "weight").expect("a weight issue");
+            assert_eq!(issue.severity, IssueSeverity::High);
+            if kg.is_some() {
+                assert!(issue.detail.contains("implausible") && issue.detail.contains("z ="), "{}", issue.detail);
+            }
+        }
+        // A stale weight (8 days old).
+        let mut facts = facts_of(
+            seven(),
+            Gender::Female,
+            vec![ionized(0.85, 1, "ica"), m(Analyte::BodyWeight, 22.0, "kg", (22.0, "kg"), 24 * 8, "wt")],
+            vec![],
+        );
+        facts.now = now();
+        let a = status::assess(&facts, &r);
+        let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+        assert!(p.proposals.is_empty());
+        assert!(p.issues.iter().any(|i| i.key == "weight" && i.detail.contains("older than 7 days")));
+    }
+
+    #[test]
+    fn asymptomatic_gets_oral_calcium_not_iv() {
+        // Ionized 1.05 in a child: below the interval, above every grade: oral.
+        let p = run(&rules(), seven(), 1.05, Some(22.0));
+        assert!(
+            p.proposals.iter().all(|x| x.route == Route::Oral),
+            "{:?}",
+            p.proposals.iter().map(|x| x.key).collect::<Vec<_>>()
+        );
+        let o = find(&p, "oral-calcium");
+        // 22 kg x 50 = 1100 mg/day in 4 doses = 275 mg per dose; from 6 years the
+        // proposal uses tablets (treatment.toml oral.tablets_from).
+        assert_eq!(o.per_day, Some(4));
+        assert!(o.text.starts_with("22 kg x 50 mg/kg/day elemental calcium = 1100 mg/day"), "{}", o.text);
+        assert_eq!(o.product.strength_per, "tablet");
+    }
+
+    #[test]
+    fn calcium_chloride_arithmetic_agrees_from_salt_and_from_elemental() {
+        // 20 mg/kg of CaCl2.2H2O: for 10 kg, 200 mg = 2 mL of 10%; elemental
+        // calcium = 2 mL x the label's elemental mg/mL; and that equals
+        // 200 mg x (40.078 / 147.01), the calcium fraction of the dihydrate, within
+        // the label's rounding.
+        let r = rules();
+        let mut facts = facts_of(seven(), Gender::Female, vec![ionized(0.85, 1, "ica"), weight(22.0)], vec![]);
+        facts.vascular_access = VascularAccess::Central;
+        let a = status::assess(&facts, &r);
+        let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+        let c = find(&p, "calcium-chloride");
+        assert!(c.alternative);
+        let dose = c.dose.as_ref().unwrap().value;
+        assert!((dose - 440.0).abs() < 1e-9, "22 kg x 20 mg/kg = 440 mg, got {dose}");
+        let prod = r.products.iter().find(|x| x.id == r.treatment.chloride.product).unwrap();
+        let from_label = dose / prod.salt_mg.unwrap() * prod.elemental_mg.unwrap();
+        let from_formula = dose * 40.078 / 147.01;
+        assert!((from_label - from_formula).abs() / from_formula < 0.01, "{from_label} vs {from_formula}");
+        assert!(c.text.contains("Central line only"));
+        assert!(!p.issues.iter().any(|i| i.key == "extravasation"));
     }
 }

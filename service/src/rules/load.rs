@@ -311,6 +311,83 @@ fn workup_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
         }
     }
     tiling(rules, problems);
+    treatment_consistency(rules, problems);
+}
+
+/// Every product, dose source and safety fact the treatment policy names exists,
+/// with the kind of dose it is used for.
+fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
+    let t = &rules.treatment;
+    let product = |id: &str, at: &str, problems: &mut Vec<String>| {
+        if !rules.products.iter().any(|p| p.id == id) {
+            problems.push(format!("  treatment.{at}: no product '{id}'"));
+        }
+    };
+    product(&t.bolus.product, "bolus.product", problems);
+    product(&t.infusion.product, "infusion.product", problems);
+    product(&t.chloride.product, "chloride.product", problems);
+    product(&t.oral.liquid_product, "oral.liquid_product", problems);
+    product(&t.oral.tablet_product, "oral.tablet_product", problems);
+    product(&t.magnesium.product, "magnesium.product", problems);
+    product(&t.vitamin_d.cholecalciferol_product, "vitamin_d.cholecalciferol_product", problems);
+    product(&t.vitamin_d.calcitriol_product, "vitamin_d.calcitriol_product", problems);
+    let sets: [(&str, &[crate::rules::treatment_model::Chosen], &[String], &str); 6] = [
+        ("bolus", &t.bolus.chosen, &t.bolus.also_shown, "bolus"),
+        ("infusion", &t.infusion.chosen, &t.infusion.also_shown, "infusion"),
+        ("chloride", &t.chloride.chosen, &t.chloride.also_shown, "calcium_chloride_bolus"),
+        ("oral", &t.oral.chosen, &t.oral.also_shown, "oral_daily"),
+        ("magnesium", &t.magnesium.chosen, &t.magnesium.also_shown, "magnesium"),
+        ("vitamin_d", &t.vitamin_d.chosen, &[], "cholecalciferol"),
+    ];
+    for (name, chosen, also, kind) in sets {
+        for id in chosen.iter().map(|c| &c.dose_source).chain(also.iter()) {
+            match rules.dose_sources.iter().find(|d| &d.id == id) {
+                None => problems.push(format!("  treatment.{name}: no dose_sources entry '{id}'")),
+                Some(d) if d.kind != kind => {
+                    problems.push(format!("  treatment.{name}: dose source '{id}' is a {} range, not {kind}", d.kind))
+                }
+                Some(_) => {}
+            }
+        }
+    }
+    for l in &t.oral.daily_limits {
+        if rules.safety_sources.get(&l.safety_source).and_then(|s| s.threshold).is_none() {
+            problems.push(format!(
+                "  treatment.oral.daily_limits: safety source '{}' with a threshold is missing",
+                l.safety_source
+            ));
+        }
+    }
+    for key in [
+        "ceftriaxone_neonate_contraindication",
+        "phosphate_bicarbonate_precipitation",
+        "digoxin",
+        "extravasation_calcinosis",
+        "no_intra_arterial_or_uac",
+        "neonatal_bradycardia_stop",
+        "ca_x_p_under_12y",
+        "ca_x_p_over_12y",
+        "calcium_chloride_rate_and_vein",
+    ] {
+        if !rules.safety_sources.contains_key(key) {
+            problems.push(format!("  safety_sources: '{key}' is read by the safety checks and is missing"));
+        }
+    }
+    for id in ["digoxin", "sodium_bicarbonate", "ceftriaxone", "calcium_preparations", "phosphate_preparations"] {
+        if !rules.code_lists.iter().any(|l| l.id == id) {
+            problems.push(format!("  code_lists: '{id}' is read by the safety checks and is missing"));
+        }
+    }
+    for d in [&t.bolus.diluent, &t.bolus.preferred_diluent] {
+        if !t.diluents.iter().any(|x| &x.id == d) {
+            problems.push(format!("  treatment.bolus: no diluent '{d}'"));
+        }
+    }
+    for c in &t.vitamin_d.calcitriol_for {
+        if !rules.causes.iter().any(|x| &x.id == c) {
+            problems.push(format!("  treatment.vitamin_d.calcitriol_for: no cause '{c}'"));
+        }
+    }
 }
 
 /// Every analyte with ranges has exactly one range for each sex on every day
@@ -423,6 +500,16 @@ mod tests {
                 assert!((0.40..=0.60).contains(&ratio), "{}: ionized {ion} / total {tot} = {ratio:.2}", band.id);
             }
         }
+    }
+
+    #[test]
+    fn a_site_file_naming_an_unknown_dose_source_is_refused() {
+        let site = "[treatment.bolus]\nalso_shown = [\"no_such_source\"]\n";
+        let err = load(Some(("site.toml", site))).unwrap_err();
+        assert!(err.to_string().contains("no dose_sources entry 'no_such_source'"), "{err}");
+        let site = "[treatment.bolus]\nalso_shown = [\"us_label_ca_gluconate_neonate_infusion\"]\n";
+        let err = load(Some(("site.toml", site))).unwrap_err();
+        assert!(err.to_string().contains("is a infusion range, not bolus"), "{err}");
     }
 
     #[test]
