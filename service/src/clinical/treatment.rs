@@ -333,7 +333,8 @@ fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     let cap = cap_of(c, d);
     let dose = raw.min(cap.as_ref().map_or(f64::INFINITY, |c| c.0));
     let ml = dose / per_ml;
-    let peripheral_max = adm.bolus_dilution_mg_per_ml[1];
+    let label_max = adm.bolus_dilution_mg_per_ml[1];
+    let peripheral_max = b.peripheral_max_mg_per_ml.map_or(label_max, |site| site.min(label_max));
     let max_rate = adm.max_bolus_rate_pediatric_mg_per_min;
     let final_ml = dose / peripheral_max;
     let diluent_ml = (final_ml - ml).max(0.0);

@@ -176,6 +176,9 @@ pub struct BolusPolicy {
     pub chosen: Vec<Chosen>,
     /// Other dose sources shown beside the proposal.
     pub also_shown: Vec<String>,
+    /// The site's own peripheral concentration limit, salt mg/mL (never above the label's).
+    #[serde(default)]
+    pub peripheral_max_mg_per_ml: Option<f64>,
     /// Shortest duration, minutes.
     pub min_minutes: f64,
     /// Source of the duration.
