@@ -321,18 +321,40 @@ pub fn plan(
     Some(plan)
 }
 
-fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
-    let b = &rules.treatment.bolus;
-    let adm = &rules.calcium_gluconate_administration;
-    let c = chosen(ctx, &b.chosen)?;
+/// A weight-based IV dose in salt mg, its volume of the product and how it was reached.
+struct WeighedDose<'r> {
+    d: &'r DoseSource,
+    p: &'r Product,
+    raw: f64,
+    how: String,
+    cap: Option<(f64, String)>,
+    dose: f64,
+    ml: f64,
+}
+
+/// The chosen source for the age, times the weight, capped, as a volume of the product.
+fn weighed<'r>(
+    rules: &'r RuleSet,
+    ctx: &Context,
+    w: &Weight,
+    choices: &'r [Chosen],
+    product_id: &str,
+) -> Option<WeighedDose<'r>> {
+    let c = chosen(ctx, choices)?;
     let d = dose_source(rules, &c.dose_source)?;
-    let p = product(rules, &b.product)?;
+    let p = product(rules, product_id)?;
     let per_ml = p.salt_mg?;
     let per_kg = if d.unit == "mL/kg" { pick(d, c.pick) * per_ml } else { pick(d, c.pick) };
     let (raw, how) = dose_for(d, per_kg, w.kg);
     let cap = cap_of(c, d);
     let dose = raw.min(cap.as_ref().map_or(f64::INFINITY, |c| c.0));
-    let ml = dose / per_ml;
+    Some(WeighedDose { d, p, raw, how, cap, dose, ml: dose / per_ml })
+}
+
+fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
+    let b = &rules.treatment.bolus;
+    let adm = &rules.calcium_gluconate_administration;
+    let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &b.chosen, &b.product)?;
     let label_max = adm.bolus_dilution_mg_per_ml[1];
     let peripheral_max = b.peripheral_max_mg_per_ml.map_or(label_max, |site| site.min(label_max));
     let max_rate = adm.max_bolus_rate_pediatric_mg_per_min;
@@ -492,15 +514,7 @@ fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     let ch = &rules.treatment.chloride;
     let (rate_source, rate) = fact(rules, "calcium_chloride_rate_and_vein");
     let max_rate_ml_per_min = rate.unwrap_or(1.0);
-    let c = chosen(ctx, &ch.chosen)?;
-    let d = dose_source(rules, &c.dose_source)?;
-    let p = product(rules, &ch.product)?;
-    let per_ml = p.salt_mg?;
-    let per_kg = if d.unit == "mL/kg" { pick(d, c.pick) * per_ml } else { pick(d, c.pick) };
-    let (raw, how) = dose_for(d, per_kg, w.kg);
-    let cap = cap_of(c, d);
-    let dose = raw.min(cap.as_ref().map_or(f64::INFINITY, |c| c.0));
-    let ml = dose / per_ml;
+    let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &ch.chosen, &ch.product)?;
     let minutes = (ml / max_rate_ml_per_min).max(1.0);
     let phrase = dose_phrase(raw, dose, &cap, "mg");
     let text = format!(
@@ -600,15 +614,7 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
 fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     let m = &rules.treatment.magnesium;
     let adm = &rules.magnesium_sulfate_administration;
-    let c = chosen(ctx, &m.chosen)?;
-    let d = dose_source(rules, &c.dose_source)?;
-    let p = product(rules, &m.product)?;
-    let per_ml = p.salt_mg?;
-    let per_kg = if d.unit == "mL/kg" { pick(d, c.pick) * per_ml } else { pick(d, c.pick) };
-    let (raw, how) = dose_for(d, per_kg, w.kg);
-    let cap = cap_of(c, d);
-    let dose = raw.min(cap.as_ref().map_or(f64::INFINITY, |c| c.0));
-    let ml = dose / per_ml;
+    let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &m.chosen, &m.product)?;
     let final_ml = dose / adm.max_iv_concentration_mg_per_ml;
     let minutes = m.minutes.max(dose / adm.max_iv_rate_mg_per_min);
     let phrase = dose_phrase(raw, dose, &cap, "mg");

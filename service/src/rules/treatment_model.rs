@@ -6,19 +6,8 @@ use serde::Deserialize;
 
 use super::model::AgeSpan;
 
-/// A coding with the listing it was verified in.
-#[derive(Debug, Clone, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct SourcedCoding {
-    /// System.
-    pub system: String,
-    /// Code.
-    pub code: String,
-    /// Display.
-    pub display: String,
-    /// Where verified.
-    pub source: String,
-}
+/// A coding with the listing it was verified in (the same shape as output codings).
+pub type SourcedCoding = super::model::OutputCoding;
 
 /// A formulary product.
 #[derive(Debug, Clone, Deserialize)]
