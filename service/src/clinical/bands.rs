@@ -5,7 +5,7 @@
 //! candidate, except bands that need a full birth date (neonatal banding is
 //! never done on a partial date). The caller evaluates each candidate.
 
-use super::time::{Age, PartialDate, When};
+use super::time::{Age, PartialDate, When, age_interval};
 use crate::rules::model::{AgeBand, AgeBound, AgeUnit, Gestation, RuleSet};
 
 /// The candidate bands for a result, with the notes that explain the choice.
@@ -48,15 +48,9 @@ pub fn choose<'r>(
     birth: PartialDate,
     when: &When,
     gestational_age_weeks: Option<f64>,
+    birth_instant: Option<i64>,
 ) -> Result<BandChoice<'r>, NoBand> {
-    let age_min = Age::between(birth.latest(), when.local_date_earliest);
-    let age_max = Age::between(birth.earliest(), when.local_date_latest);
-    let (age_min, age_max) = match (age_min, age_max) {
-        (Some(a), Some(b)) => (a, b),
-        // The latest possible birth is after the result, but an earlier one is not.
-        (None, Some(b)) => (Age { days: 0, months: 0, years: 0 }, b),
-        _ => return Err(NoBand::BornAfterResult),
-    };
+    let (age_min, age_max) = age_interval(birth, birth_instant, when).ok_or(NoBand::BornAfterResult)?;
     let mut notes = Vec::new();
     let mut skipped_neonatal = false;
     let mut skipped_preterm = false;
@@ -147,7 +141,7 @@ mod tests {
     }
 
     fn band_of(rules: &RuleSet, birth: PartialDate, when: When, ga: Option<f64>) -> Vec<String> {
-        choose(rules, birth, &when, ga).unwrap().candidates.iter().map(|b| b.id.clone()).collect()
+        choose(rules, birth, &when, ga, None).unwrap().candidates.iter().map(|b| b.id.clone()).collect()
     }
 
     #[test]
@@ -165,7 +159,7 @@ mod tests {
         assert_eq!(band_of(&r, birth, on(2036, 1, 1), None), ["adolescent"]);
         // Day before the 19th birthday: adolescent; on it: outside the rules.
         assert_eq!(band_of(&r, birth, on(2042, 12, 31), None), ["adolescent"]);
-        assert!(matches!(choose(&r, birth, &on(2043, 1, 1), None), Err(NoBand::OutsideScope(_))));
+        assert!(matches!(choose(&r, birth, &on(2043, 1, 1), None, None), Err(NoBand::OutsideScope(_))));
         // Day of birth.
         assert_eq!(band_of(&r, birth, on(2024, 1, 1), None), ["term-neonate"]);
     }
@@ -176,7 +170,7 @@ mod tests {
         let birth = full(2026, 11, 28);
         assert_eq!(band_of(&r, birth, on(2026, 11, 30), Some(33.0)), ["preterm-neonate"]);
         assert_eq!(band_of(&r, birth, on(2026, 11, 30), Some(37.0)), ["term-neonate"]);
-        let choice = choose(&r, birth, &on(2026, 11, 30), None).unwrap();
+        let choice = choose(&r, birth, &on(2026, 11, 30), None, None).unwrap();
         assert_eq!(choice.candidates[0].id, "term-neonate");
         assert!(choice.notes.iter().any(|n| n.contains("Gestational age at birth is not recorded")));
     }
@@ -185,7 +179,7 @@ mod tests {
     fn partial_birth_dates_never_give_neonatal_bands() {
         let r = rules();
         // Born "2026-11": on 2026-11-30 the baby is 0-29 days old.
-        let choice = choose(&r, PartialDate::YearMonth(2026, 11), &on(2026, 11, 30), None).unwrap();
+        let choice = choose(&r, PartialDate::YearMonth(2026, 11), &on(2026, 11, 30), None, None).unwrap();
         let ids: Vec<&str> = choice.candidates.iter().map(|b| b.id.as_str()).collect();
         assert_eq!(ids, ["infant"]);
         assert!(choice.notes.iter().any(|n| n.contains("Neonatal ranges need a full birth date")));
@@ -199,6 +193,6 @@ mod tests {
     #[test]
     fn a_birth_date_after_the_result_is_refused() {
         let r = rules();
-        assert_eq!(choose(&r, full(2026, 12, 1), &on(2026, 11, 30), None).unwrap_err(), NoBand::BornAfterResult);
+        assert_eq!(choose(&r, full(2026, 12, 1), &on(2026, 11, 30), None, None).unwrap_err(), NoBand::BornAfterResult);
     }
 }

@@ -124,9 +124,7 @@ impl Context {
     /// Build from the facts and the calcium result's time; `None` without a usable birth date.
     pub fn new(facts: &Facts, anchor: When) -> Option<Self> {
         let birth: PartialDate = facts.patient.birth_date?;
-        let age_max = Age::between(birth.earliest(), anchor.local_date_latest)?;
-        let age_min =
-            Age::between(birth.latest(), anchor.local_date_earliest).unwrap_or(Age { days: 0, months: 0, years: 0 });
+        let (age_min, age_max) = super::time::age_interval(birth, facts.patient.birth_instant, &anchor)?;
         Some(Self { age_min, age_max, gender: facts.patient.gender, anchor })
     }
 

@@ -268,6 +268,8 @@ pub enum Gender {
 pub struct PatientFacts {
     /// Birth date with its precision, if given.
     pub birth_date: Option<PartialDate>,
+    /// Birth time (patient-birthTime extension), unix seconds, if given.
+    pub birth_instant: Option<i64>,
     /// Gender.
     pub gender: Gender,
     /// Where it came from.

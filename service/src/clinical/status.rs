@@ -359,7 +359,13 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         ctx.basis.push(describe_input(measure, calcium));
         return finish(ctx, GuidanceStatus::DataRequired, None, None);
     };
-    let choice = match bands::choose(rules, birth, &calcium.when, facts.gestational_age_weeks) {
+    let choice = match bands::choose(
+        rules,
+        birth,
+        &calcium.when,
+        facts.gestational_age_weeks,
+        facts.patient.birth_instant,
+    ) {
         Ok(c) => c,
         Err(NoBand::BornAfterResult) => {
             ctx.cautions.push(format!(

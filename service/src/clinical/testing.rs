@@ -69,6 +69,7 @@ pub fn facts(birth: Option<PartialDate>, measurements: Vec<Measurement>) -> Fact
     Facts {
         patient: PatientFacts {
             birth_date: birth,
+            birth_instant: None,
             gender: Gender::Female,
             source: Source {
                 resource_type: "Patient".into(),

@@ -217,6 +217,25 @@ impl Age {
     }
 }
 
+/// The youngest and oldest possible age at `when` of someone born on `birth`
+/// (and, when recorded, at the instant `birth_instant`, unix seconds: then
+/// completed days are counted from the birth time, so "under 3 days" means
+/// "under 72 hours"). `None` when the birth is after `when`.
+pub fn age_interval(birth: PartialDate, birth_instant: Option<i64>, when: &When) -> Option<(Age, Age)> {
+    let max = Age::between(birth.earliest(), when.local_date_latest)?;
+    let min = Age::between(birth.latest(), when.local_date_earliest).unwrap_or(Age { days: 0, months: 0, years: 0 });
+    match birth_instant {
+        Some(b) if birth.is_full() => {
+            if when.latest < b {
+                return None;
+            }
+            let days = |t: i64| (t - b).max(0).div_euclid(86_400);
+            Some((Age { days: days(when.earliest), ..min }, Age { days: days(when.latest), ..max }))
+        }
+        _ => Some((min, max)),
+    }
+}
+
 fn plural(n: i64, word: &str) -> String {
     if n == 1 { format!("1 {word}") } else { format!("{n} {word}s") }
 }
@@ -261,6 +280,22 @@ mod tests {
         let age = Age::between(d(2025, 1, 31), d(2025, 2, 28)).unwrap();
         assert_eq!(age.months, 1);
         assert!(Age::between(d(2026, 1, 2), d(2026, 1, 1)).is_none());
+    }
+
+    #[test]
+    fn a_birth_time_counts_completed_days_from_the_birth_instant() {
+        // Born 2026-11-28T23:30Z, sampled 2026-12-01T00:10Z: three calendar days,
+        // but 48 h 40 min elapsed, so 2 completed days ("under 72 h").
+        let birth = PartialDate::Full(d(2026, 11, 28));
+        let born = d(2026, 11, 28).days_since_epoch() * 86_400 + 23 * 3600 + 30 * 60;
+        let t = d(2026, 12, 1).days_since_epoch() * 86_400 + 10 * 60;
+        let when =
+            When { earliest: t, latest: t, local_date_earliest: d(2026, 12, 1), local_date_latest: d(2026, 12, 1) };
+        let (min, max) = age_interval(birth, None, &when).unwrap();
+        assert_eq!((min.days, max.days), (3, 3));
+        let (min, max) = age_interval(birth, Some(born), &when).unwrap();
+        assert_eq!((min.days, max.days), (2, 2));
+        assert!(age_interval(birth, Some(t + 1), &when).is_none());
     }
 
     #[test]

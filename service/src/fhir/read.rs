@@ -478,7 +478,33 @@ impl<'a> Reader<'a> {
                 None
             }
         };
-        Ok(PatientFacts { birth_date, gender, source: self.source(e, "") })
+        // The birth time, from the standard patient-birthTime extension on birthDate.
+        let birth_time = e
+            .resource
+            .get("_birthDate")
+            .and_then(|b| b.get("extension"))
+            .and_then(Value::as_array)
+            .and_then(|x| {
+                x.iter().find(|x| str_at(x, "url") == Some("http://hl7.org/fhir/StructureDefinition/patient-birthTime"))
+            })
+            .and_then(|x| str_at(x, "valueDateTime"));
+        let birth_instant = match birth_time.map(datetime::parse_date_time) {
+            None => None,
+            Some(Ok(t))
+                if t.date_only.is_none() && birth_date.is_some_and(|d| d.earliest() == t.when.local_date_earliest) =>
+            {
+                Some(t.when.earliest)
+            }
+            Some(_) => {
+                self.aside(
+                    e,
+                    "._birthDate.extension",
+                    "birth time not used: not a dateTime with a time on the birth date",
+                );
+                None
+            }
+        };
+        Ok(PatientFacts { birth_date, birth_instant, gender, source: self.source(e, "") })
     }
 
     /// True when `subject` is the bundle's patient; otherwise sets the resource aside.
