@@ -11,5 +11,9 @@ mod bad_input;
 mod examples;
 // Check values produced by outside reference libraries (UCUM, molecular masses) against our tables.
 mod reference_values;
+// Check values from outside libraries for the treatment side: weight-for-age z (growth packages) and salt chemistry (molmass).
+mod reference_treatment;
 // Clinical scenarios over HTTP: status, severity, adjustment, banding.
 mod clinical;
+// Treatment proposals over HTTP: weight-based draft doses, their order, and each safety check.
+mod treatment;

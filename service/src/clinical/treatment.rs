@@ -564,25 +564,34 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     let cap = limit.map_or(f64::INFINITY, |l| l.0);
     let day = raw_day.min(cap);
     let per_dose = day / f64::from(o.doses_per_day);
-    let (amount, unit_text, given_per_dose) = if p.strength_per == "mL" {
-        let ml = round_to(per_dose / per_unit, o.liquid_round_ml).max(o.liquid_round_ml);
-        (ml, "mL".to_owned(), ml * per_unit)
+    // The measurable amount nearest the dose, stepped down when rounding up would
+    // pass the daily cap.
+    let doses = f64::from(o.doses_per_day);
+    let (step, unit_text) = if p.strength_per == "mL" {
+        (o.liquid_round_ml, "mL".to_owned())
     } else {
-        let parts = f64::from(p.divisible_into.unwrap_or(1).max(1));
-        let n = ((per_dose / per_unit) * parts).round().max(1.0) / parts;
-        (n, p.strength_per.clone(), n * per_unit)
+        (1.0 / f64::from(p.divisible_into.unwrap_or(1).max(1)), p.strength_per.clone())
     };
+    let mut amount = round_to(per_dose / per_unit, step).max(step);
+    while amount > step && amount * per_unit * doses > cap + 1e-9 {
+        amount -= step;
+    }
+    let given_per_dose = amount * per_unit;
+    let unit_text = if unit_text != "mL" && (amount - 1.0).abs() > 1e-9 { format!("{unit_text}s") } else { unit_text };
     let capped = match limit {
-        Some((max, source)) if day < raw_day => {
-            format!(" capped at the daily upper limit {} mg/day ({source})", num_trim(max))
-        }
-        _ => String::new(),
+        Some((max, source)) if day < raw_day => format!(
+            " = {} mg/day, capped at the daily upper limit {} mg/day ({source}), so {} mg/day",
+            num_trim(raw_day),
+            num_trim(max),
+            num_trim(day)
+        ),
+        _ => format!(" = {} mg/day", num_trim(day)),
     };
     let text = format!(
-        "{} kg x {} mg/kg/day elemental calcium = {} mg/day{capped}, in {} doses ({}) = {} mg per dose = {} {unit_text} of {} ({} mg elemental calcium per {}), giving {} mg elemental per dose ({} mg/day). {}",
+        "{} kg x {} mg/kg/day elemental calcium{capped}, in {} doses ({}) = {} mg per dose = {} {unit_text} of {} ({} mg elemental calcium per {}), giving {} mg elemental per dose ({} mg/day). {}",
         num_trim(w.kg),
         num_trim(per_kg_day),
-        num_trim(day),
+        
         o.doses_per_day,
         o.doses_source,
         num_trim(per_dose),

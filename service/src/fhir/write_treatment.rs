@@ -111,33 +111,28 @@ pub fn treatment_output(
     let urn = |k: &str| format!("urn:uuid:{}", ctx.uuid(k));
     let mut out = TreatmentOutput::default();
     let mut main = Vec::new();
-    let mut iv_choice = Vec::new();
-    for p in &plan.proposals {
-        let key = format!("medication-{}", p.key);
-        let mr = medication_request(ctx, p, subject, device, now, calcium);
-        let action = json!({
+    let action_of = |p: &MedProposal| {
+        json!({
             "title": p.title,
             "description": p.text,
-            "resource": { "reference": urn(&key), "type": "MedicationRequest" },
-        });
-        if p.key == "calcium-bolus" || p.alternative {
-            iv_choice.push(action);
-        } else {
-            if !iv_choice.is_empty() && p.key == "calcium-infusion" {
-                main.push(bolus_group(std::mem::take(&mut iv_choice)));
-            }
-            main.push(action);
-        }
+            "resource": { "reference": urn(&format!("medication-{}", p.key)), "type": "MedicationRequest" },
+        })
+    };
+    // The bolus and its alternatives (calcium chloride on a central line): choose one.
+    let choice: Vec<Value> =
+        plan.proposals.iter().filter(|p| p.key == "calcium-bolus" || p.alternative).map(action_of).collect();
+    for p in &plan.proposals {
+        let key = format!("medication-{}", p.key);
         out.targets.push(json!({ "reference": urn(&key), "type": "MedicationRequest" }));
-        out.entries.push(json!({ "fullUrl": urn(&key), "resource": mr }));
-    }
-    if !iv_choice.is_empty() {
-        // The bolus (or its alternative) comes before the infusion.
-        let at = main
-            .iter()
-            .position(|a| a["title"].as_str().is_some_and(|t| t.starts_with("Continuous")))
-            .unwrap_or(main.len());
-        main.insert(at, bolus_group(iv_choice));
+        out.entries.push(json!({ "fullUrl": urn(&key), "resource": medication_request(ctx, p, subject, device, now, calcium) }));
+        if p.alternative {
+            continue;
+        }
+        if p.key == "calcium-bolus" {
+            main.push(bolus_group(choice.clone()));
+        } else {
+            main.push(action_of(p));
+        }
     }
     if !main.is_empty() {
         let names: Vec<&str> = plan.proposals.iter().map(|p| p.title.as_str()).collect();
