@@ -591,7 +591,6 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         "{} kg x {} mg/kg/day elemental calcium{capped}, in {} doses ({}) = {} mg per dose = {} {unit_text} of {} ({} mg elemental calcium per {}), giving {} mg elemental per dose ({} mg/day). {}",
         num_trim(w.kg),
         num_trim(per_kg_day),
-        
         o.doses_per_day,
         o.doses_source,
         num_trim(per_dose),

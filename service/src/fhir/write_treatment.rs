@@ -124,7 +124,9 @@ pub fn treatment_output(
     for p in &plan.proposals {
         let key = format!("medication-{}", p.key);
         out.targets.push(json!({ "reference": urn(&key), "type": "MedicationRequest" }));
-        out.entries.push(json!({ "fullUrl": urn(&key), "resource": medication_request(ctx, p, subject, device, now, calcium) }));
+        out.entries.push(
+            json!({ "fullUrl": urn(&key), "resource": medication_request(ctx, p, subject, device, now, calcium) }),
+        );
         if p.alternative {
             continue;
         }
