@@ -88,11 +88,6 @@ fn restricted(x: f64, lms: (f64, f64, f64)) -> f64 {
     }
 }
 
-/// The weight at which the restricted z is exactly +5: SD3 + 2 x (SD3 - SD2).
-fn weight_at_restricted_plus5(lms: (f64, f64, f64)) -> f64 {
-    let (sd2, sd3) = (sd_line(2.0, lms), sd_line(3.0, lms));
-    sd3 + 2.0 * (sd3 - sd2)
-}
 
 struct Point<'a> {
     v: &'a Value,
@@ -276,39 +271,57 @@ fn growth_who_beyond_3_matches_anthros_restricted_z() {
     assert!(compared >= 4, "only {compared} WHO points beyond |z| > 3");
 }
 
+/// CDC modified z (CDC SAS program for the 2000 growth charts): the distance
+/// from the median in half the median-to-SD2 spans, from L, M, S.
+fn modified(x: f64, lms: (f64, f64, f64)) -> f64 {
+    let m = lms.1;
+    if x >= m { (x - m) / ((sd_line(2.0, lms) - m) / 2.0) } else { (x - m) / ((m - sd_line(-2.0, lms)) / 2.0) }
+}
+
+/// The weight at which the modified z is exactly +5: M + 2.5 x (SD2 - M).
+fn weight_at_modified_plus5(lms: (f64, f64, f64)) -> f64 {
+    lms.1 + 2.5 * (sd_line(2.0, lms) - lms.1)
+}
+
 #[test]
-fn growth_cdc_beyond_3_matches_restricted_z_from_the_tabulated_lms() {
-    // No CDC package in the set computes WHO's restricted z (rcpchgrowth uses the
-    // plain LMS z for weight at every z), so the check value is computed here
-    // from SD2 and SD3 of growth.toml's L, M, S as the generator recorded them
-    // (`plain_lms`, 9 decimals): tolerance 1e-5. The same rule on rcpchgrowth's
-    // cubic-interpolated L, M, S (`z_package_lms`) must agree within 0.01.
+fn growth_cdc_points_report_the_plain_lms_z_and_check_the_modified_z() {
+    // On the CDC tables the service reports the plain LMS z (as rcpchgrowth
+    // computes it) and applies the plausibility limit to the CDC modified z,
+    // computed here from growth.toml's L, M, S as the generator recorded them
+    // (`plain_lms`, 9 decimals): tolerance 1e-5; on rcpchgrowth's cubic L, M, S
+    // (`z_package_lms`) within 0.01.
     let json = growth_json();
     let rules = rules();
     let mut compared = 0;
-    for p in points(&json).iter().filter(|p| !p.who && p.plain_z.abs() > 3.0) {
-        let ours = our_z(&rules, p).z;
-        let here = restricted(p.weight, p.lms);
-        assert!((ours - here).abs() <= 1e-5, "{}: our z {ours}, restricted from tabulated L, M, S {here}", p.label);
-        let pkg = restricted(p.weight, lms_triple(p.v, "z_package_lms"));
-        assert!((ours - pkg).abs() <= 0.01, "{}: our z {ours}, restricted from rcpchgrowth's L, M, S {pkg}", p.label);
-        assert!(ours.signum() == p.plain_z.signum() && ours.abs() > 3.0, "{}: {ours} vs plain {}", p.label, p.plain_z);
-        assert!((ours - p.plain_z).abs() > 0.1, "{}: restricted {ours} vs plain {}", p.label, p.plain_z);
-        println!("{}: ours {ours:.4} (rcpchgrowth LMS {pkg:.4}), plain LMS {:.4}", p.label, p.plain_z);
+    for p in points(&json).iter().filter(|p| !p.who) {
+        let ours = our_z(&rules, p);
+        assert!((ours.z - p.plain_z).abs() <= 1e-5, "{}: reported z {} vs plain {}", p.label, ours.z, p.plain_z);
+        let here = modified(p.weight, p.lms);
+        assert!(
+            (ours.check_z - here).abs() <= 1e-5,
+            "{}: check z {}, modified from tabulated L, M, S {here}",
+            p.label,
+            ours.check_z
+        );
+        let pkg = modified(p.weight, lms_triple(p.v, "z_package_lms"));
+        assert!(
+            (ours.check_z - pkg).abs() <= 0.01,
+            "{}: check z {}, modified from rcpchgrowth's L, M, S {pkg}",
+            p.label,
+            ours.check_z
+        );
+        assert_eq!(ours.check_method, "CDC modified z");
         compared += 1;
     }
-    assert!(compared >= 5, "only {compared} CDC points beyond |z| > 3");
+    assert!(compared >= 10, "only {compared} CDC points");
 }
 
 #[test]
 fn growth_extreme_heavy_cdc_points_where_the_plain_lms_z_saturates() {
     // Source: growth-check-values.json. For L < 0 the plain LMS z is bounded by
-    // -1/(L S) (`plain_lms_z_supremum`). The extreme heavy points (weight at
-    // least twice the median) show why the service uses the restricted z: it
-    // keeps growing with weight. Our z exceeds the plausibility limit exactly
-    // when the weight exceeds SD3 + 2 x SD23 (computed here from the JSON's
-    // L, M, S). Not every extreme point gets there: for a 15-year-old girl
-    // SD3 is already 136 kg, so 150 kg is restricted z 3.27.
+    // -1/(L S) (`plain_lms_z_supremum`), so it cannot flag a grossly wrong heavy
+    // weight. The modified z keeps growing with weight: our check z exceeds the
+    // plausibility limit exactly when the weight exceeds M + 2.5 x (SD2 - M).
     let json = growth_json();
     let rules = rules();
     let limit = rules.growth_policy.implausible_abs_z;
@@ -318,37 +331,31 @@ fn growth_extreme_heavy_cdc_points_where_the_plain_lms_z_saturates() {
     for p in pts.iter().filter(|p| p.label.contains("saturates")) {
         assert!(heavy.iter().any(|h| h.label == p.label), "{}: not an extreme heavy point", p.label);
     }
-    let mut above = 0;
     for p in &heavy {
         let sup = f64_at(p.v, "plain_lms_z_supremum");
         assert!((sup - (-1.0 / (p.lms.0 * p.lms.2))).abs() <= 1e-4, "{}: supremum {sup}", p.label);
         assert!(p.plain_z < sup && p.package_z < sup, "{}: plain z beyond its supremum", p.label);
-        let ours = our_z(&rules, p).z;
-        assert!(ours > p.plain_z, "{}: our z {ours} not above the plain LMS z {}", p.label, p.plain_z);
-        let w5 = weight_at_restricted_plus5(p.lms);
-        assert_eq!(ours > limit, p.weight > w5, "{}: our z {ours}, {} kg vs z = +5 at {w5:.1} kg", p.label, p.weight);
-        if ours > limit {
-            above += 1;
-        }
-        println!("{}: ours {ours:.4}, plain LMS {:.4} (bound {sup}), z = +5 at {w5:.1} kg", p.label, p.plain_z);
+        let ours = our_z(&rules, p).check_z;
+        let w5 = weight_at_modified_plus5(p.lms);
+        assert_eq!(ours > limit, p.weight > w5, "{}: check z {ours}, {} kg vs z = +5 at {w5:.1} kg", p.label, p.weight);
+        // Twice the median is beyond +5 on the modified scale at every CDC age in the set.
+        assert!(ours > limit, "{}: {} kg (twice the median or more) passes with check z {ours}", p.label, p.weight);
+        println!("{}: check z {ours:.4}, plain LMS {:.4} (bound {sup}), z = +5 at {w5:.1} kg", p.label, p.plain_z);
     }
     assert!(heavy.len() >= 3, "only {} extreme heavy CDC points", heavy.len());
-    // The 18-year-old boy at 250 kg (plain z 4.37) and the 5-year-old at 54 kg.
-    assert!(above >= 2, "only {above} extreme heavy points above {limit}");
-    // Where the JSON says the plain z saturates below the limit at a point, the
-    // package's plain z cannot flag it at any weight, while ours can.
     let saturated: Vec<&&Point<'_>> = heavy
         .iter()
         .filter(|p| f64_at(p.v, "plain_lms_z_supremum") <= limit && p.label.contains("saturates"))
         .collect();
     assert!(!saturated.is_empty(), "no point whose plain-LMS bound is at most {limit}");
     for p in saturated {
-        let w = 1.01 * weight_at_restricted_plus5(p.lms);
-        let z = weight_for_age_z(&rules, p.sex, p.age, w).expect("z").z;
+        let w = 1.01 * weight_at_modified_plus5(p.lms);
+        let z = weight_for_age_z(&rules, p.sex, p.age, w).expect("z");
         assert!(
-            z > limit && plain_z(w, p.lms) < limit,
-            "{}: at {w:.1} kg ours {z}, plain {}",
+            z.check_z > limit && plain_z(w, p.lms) < limit,
+            "{}: at {w:.1} kg check {}, plain {}",
             p.label,
+            z.check_z,
             plain_z(w, p.lms)
         );
     }

@@ -6,9 +6,12 @@
 //! Growth Charts Data files" page). Beyond |z| > 3 the WHO restricted method
 //! is used (WHO Child Growth Standards, methods report 2006): z = 3 + (X -
 //! SD3) / (SD3 - SD2) above, z = -3 - (SD3neg - X) / (SD2neg - SD3neg) below,
-//! where SDk = M (1 + L S k)^(1/L). Without it the plain LMS z saturates when
-//! L < 0 (CDC tables at older ages), so a grossly wrong heavy weight could
-//! pass the plausibility check.
+//! where SDk = M (1 + L S k)^(1/L), on the WHO tables. On the CDC tables the
+//! plausibility check uses the CDC's own modified z (CDC SAS program for the
+//! 2000 growth charts: (X - M) / ((SD2 - M) / 2) above the median, (X - M) /
+//! ((M - SD2neg) / 2) below): the plain LMS z saturates where L < 0, and the
+//! WHO rule stretches too far on the skewed CDC tables (an 18-year-old girl
+//! would reach +5 only near 376 kg; measured in tests/reference/growth).
 
 use crate::rules::model::RuleSet;
 use crate::rules::treatment_model::GrowthReference;
@@ -16,8 +19,12 @@ use crate::rules::treatment_model::GrowthReference;
 /// A z-score and the table it came from.
 #[derive(Debug, Clone, PartialEq)]
 pub struct ZScore {
-    /// z.
+    /// The reported z: LMS (WHO restricted beyond |z| > 3 on WHO tables).
     pub z: f64,
+    /// The z the plausibility limit is applied to (WHO: as `z`; CDC: modified z).
+    pub check_z: f64,
+    /// How `check_z` was computed.
+    pub check_method: &'static str,
     /// Reference id.
     pub reference: String,
     /// Interpolated M (median), kg.
@@ -69,6 +76,11 @@ pub fn restricted_z(x: f64, l: f64, m: f64, s: f64) -> f64 {
     z
 }
 
+/// The CDC modified z (distance from the median in half the median-to-SD2 spans).
+pub fn modified_z(x: f64, l: f64, m: f64, s: f64) -> f64 {
+    if x >= m { (x - m) / ((lms_x(2.0, l, m, s) - m) / 2.0) } else { (x - m) / ((m - lms_x(-2.0, l, m, s)) / 2.0) }
+}
+
 /// Weight-for-age z for a sex ("male" / "female") at an age in months.
 pub fn weight_for_age_z(rules: &RuleSet, sex: &str, age_months: f64, weight_kg: f64) -> Option<ZScore> {
     let who = age_months < rules.growth_policy.use_who_until_months;
@@ -80,7 +92,24 @@ pub fn weight_for_age_z(rules: &RuleSet, sex: &str, age_months: f64, weight_kg: 
             && age_months <= t.until_months
     })?;
     let (l, m, s) = lms_at(table, age_months)?;
-    Some(ZScore { z: restricted_z(weight_kg, l, m, s), reference: table.label.clone(), median: m })
+    Some(if who {
+        let z = restricted_z(weight_kg, l, m, s);
+        ZScore {
+            z,
+            check_z: z,
+            check_method: "WHO LMS z (restricted beyond |z| > 3)",
+            reference: table.label.clone(),
+            median: m,
+        }
+    } else {
+        ZScore {
+            z: lms_z(weight_kg, l, m, s),
+            check_z: modified_z(weight_kg, l, m, s),
+            check_method: "CDC modified z",
+            reference: table.label.clone(),
+            median: m,
+        }
+    })
 }
 
 /// Age in months from days (mean Gregorian month, 30.4375 days).

@@ -221,12 +221,14 @@ pub fn dosing_weight(rules: &RuleSet, facts: &Facts, ctx: &Context) -> Result<We
         return Err("No weight-for-age reference covers this age; the weight cannot be checked.".to_owned());
     }
     // Implausible only when implausible for every sex it could be checked for.
-    if zs.iter().all(|z| z.z.abs() > limit_z) {
+    if zs.iter().all(|z| z.check_z.abs() > limit_z) {
         let z = &zs[0];
         return Err(format!(
-            "The weight {} kg is implausible for the age (weight-for-age z = {}; median {} kg; {}; limit |z| > {} ({})). It may be a unit or entry error. Check and re-record the weight.",
+            "The weight {} kg is implausible for the age (weight-for-age z = {}, {} {}; median {} kg; {}; limit |z| > {} ({})). It may be a unit or entry error. Check and re-record the weight.",
             num_trim(w.value),
             num(z.z, 1),
+            z.check_method,
+            num(z.check_z, 1),
             num(z.median, 1),
             z.reference,
             num_trim(limit_z),
