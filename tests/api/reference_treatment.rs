@@ -88,7 +88,6 @@ fn restricted(x: f64, lms: (f64, f64, f64)) -> f64 {
     }
 }
 
-
 struct Point<'a> {
     v: &'a Value,
     label: &'a str,
