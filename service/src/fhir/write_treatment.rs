@@ -74,6 +74,15 @@ fn medication_request(
         dosage["maxDosePerPeriod"] = json!({ "numerator": qty(m.value, m.unit), "denominator": qty(1.0, "d") });
     }
     let mut notes: Vec<Value> = p.sources.iter().map(|s| json!({ "text": s })).collect();
+    notes.push(json!({ "text": format!(
+        "Product: {} ({}; confidence {}). Check the strength against the product on the ward before use.",
+        p.product.label, p.product.source, p.product.confidence
+    ) }));
+    if p.key == "cholecalciferol"
+        && let Some(f) = ctx.rules.rules.safety_sources.get("vitamin_d_drop_strength_confusion")
+    {
+        notes.push(json!({ "text": format!("{} ({})", f.text, f.source) }));
+    }
     if p.specialist {
         notes.push(json!({ "text": "No dose is proposed: specialist dosing." }));
     }
