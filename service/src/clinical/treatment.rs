@@ -871,6 +871,27 @@ fn safety_with_proposals(
             }),
             _ => {}
         }
+        let brady: Vec<Source> = finding
+            .symptoms
+            .iter()
+            .filter(|x| x.symptom == crate::clinical::facts::Symptom::Bradycardia)
+            .map(|x| x.source.clone())
+            .collect();
+        if !brady.is_empty() {
+            let (source, bpm) = fact(rules, "neonatal_bradycardia_stop");
+            plan.issues.push(SafetyIssue {
+                key: "bradycardia",
+                act_code: None,
+                severity: IssueSeverity::High,
+                title: "Bradycardia recorded".into(),
+                detail: "Bradycardia is recorded; IV calcium given too fast causes bradycardia and arrhythmia.".into(),
+                implicated: brady,
+                mitigation: format!(
+                    "Give IV calcium under continuous ECG and heart-rate monitoring; in neonates stop the bolus if the heart rate falls below {} bpm ({source}).",
+                    num_trim(bpm.unwrap_or(f64::NAN))
+                ),
+            });
+        }
         if let Some(q) = finding.qtc.as_ref().filter(|q| q.prolonged) {
             plan.issues.push(SafetyIssue {
                 key: "qtc",
@@ -1061,6 +1082,26 @@ mod tests {
         assert_eq!(o.per_day, Some(4));
         assert!(o.text.starts_with("22 kg x 50 mg/kg/day elemental calcium = 1100 mg/day"), "{}", o.text);
         assert_eq!(o.product.strength_per, "tablet");
+    }
+
+    #[test]
+    fn a_recorded_bradycardia_raises_a_monitoring_issue() {
+        let r = rules();
+        let brady = |hours_ago| {
+            let mut s = seizure(Some(hours_ago));
+            s.symptom = crate::clinical::facts::Symptom::Bradycardia;
+            s
+        };
+        // A recorded bradycardia is itself a symptom (so IV calcium is proposed):
+        // the issue fires; a seizure alone proposes IV calcium without it.
+        for (bradycardia, fires) in [(true, true), (false, false)] {
+            let mut facts = facts_of(seven(), Gender::Female, vec![ionized(1.05, 1, "ica"), weight(22.0)], vec![]);
+            facts.symptoms.push(if bradycardia { brady(2) } else { seizure(Some(2)) });
+            let a = status::assess(&facts, &r);
+            let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+            assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"));
+            assert_eq!(p.issues.iter().any(|i| i.key == "bradycardia"), fires, "bradycardia {bradycardia}");
+        }
     }
 
     #[test]
