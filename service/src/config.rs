@@ -61,6 +61,108 @@ pub struct ServeArgs {
     /// Rules.
     #[command(flatten)]
     pub rules: RuleArgs,
+    /// Upstream FHIR server for patient-context assessment.
+    #[command(flatten)]
+    pub upstream: UpstreamArgs,
+}
+
+/// A secret that never prints.
+#[derive(Clone, PartialEq, Eq)]
+pub struct Secret(pub String);
+
+impl std::fmt::Debug for Secret {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("Secret(***)")
+    }
+}
+
+impl std::str::FromStr for Secret {
+    type Err = std::convert::Infallible;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Ok(Self(s.to_owned()))
+    }
+}
+
+/// Upstream FHIR client options (operational settings, not clinical ones).
+#[derive(Debug, Clone, Args)]
+pub struct UpstreamArgs {
+    /// Base URL of the EHR's FHIR server; enables POST /fhir/Patient/{id}/$assess.
+    #[arg(long = "fhir-base-url", env = "CALCIUM_CDS_FHIR_BASE_URL")]
+    pub fhir_base_url: Option<String>,
+    /// Static bearer token for the FHIR server (never logged).
+    #[arg(long = "fhir-token", env = "CALCIUM_CDS_FHIR_TOKEN", hide_env_values = true)]
+    pub fhir_token: Option<Secret>,
+    /// File holding the bearer token.
+    #[arg(long = "fhir-token-file", env = "CALCIUM_CDS_FHIR_TOKEN_FILE")]
+    pub fhir_token_file: Option<PathBuf>,
+    /// Per-call timeout, milliseconds.
+    #[arg(long, env = "CALCIUM_CDS_UPSTREAM_TIMEOUT_MS", default_value_t = 3000)]
+    pub upstream_timeout_ms: u64,
+    /// Overall deadline of a gather, milliseconds.
+    #[arg(long, env = "CALCIUM_CDS_UPSTREAM_DEADLINE_MS", default_value_t = 10000)]
+    pub upstream_deadline_ms: u64,
+    /// Retries after the first try, per call.
+    #[arg(long, env = "CALCIUM_CDS_UPSTREAM_RETRIES", default_value_t = 2)]
+    pub upstream_retries: u32,
+    /// Pages followed per search.
+    #[arg(long, env = "CALCIUM_CDS_UPSTREAM_PAGE_LIMIT", default_value_t = 5)]
+    pub upstream_page_limit: u32,
+    /// `_count` per page.
+    #[arg(long, env = "CALCIUM_CDS_UPSTREAM_PAGE_SIZE", default_value_t = 100)]
+    pub upstream_page_size: u32,
+}
+
+impl Default for UpstreamArgs {
+    fn default() -> Self {
+        Self {
+            fhir_base_url: None,
+            fhir_token: None,
+            fhir_token_file: None,
+            upstream_timeout_ms: 3000,
+            upstream_deadline_ms: 10000,
+            upstream_retries: 2,
+            upstream_page_limit: 5,
+            upstream_page_size: 100,
+        }
+    }
+}
+
+impl UpstreamArgs {
+    /// The client, when a base URL is configured; an error for a bad URL or token file.
+    pub fn client(&self) -> Result<Option<crate::upstream::FhirClient>, String> {
+        let Some(base) = &self.fhir_base_url else { return Ok(None) };
+        let parsed =
+            reqwest::Url::parse(base).map_err(|e| format!("CALCIUM_CDS_FHIR_BASE_URL '{base}' is not a URL: {e}"))?;
+        if !matches!(parsed.scheme(), "http" | "https") {
+            return Err(format!("CALCIUM_CDS_FHIR_BASE_URL must be http or https, not {}", parsed.scheme()));
+        }
+        let token = match (&self.fhir_token, &self.fhir_token_file) {
+            (Some(t), _) => Some(t.0.clone()),
+            (None, Some(path)) => Some(
+                std::fs::read_to_string(path)
+                    .map_err(|e| format!("cannot read the token file {}: {e}", path.display()))?
+                    .trim()
+                    .to_owned(),
+            ),
+            (None, None) => None,
+        };
+        let http = reqwest::Client::builder()
+            .pool_idle_timeout(std::time::Duration::from_secs(90))
+            .build()
+            .map_err(|e| format!("HTTP client: {e}"))?;
+        Ok(Some(crate::upstream::FhirClient::new(
+            http,
+            crate::upstream::UpstreamSettings {
+                base_url: base.trim_end_matches('/').to_owned(),
+                bearer_token: token,
+                call_timeout: std::time::Duration::from_millis(self.upstream_timeout_ms),
+                deadline: std::time::Duration::from_millis(self.upstream_deadline_ms),
+                max_retries: self.upstream_retries,
+                page_limit: self.upstream_page_limit.max(1),
+                page_size: self.upstream_page_size.max(1),
+            },
+        )))
+    }
 }
 
 /// Load the rules: embedded defaults, plus the site file when given.

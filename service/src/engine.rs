@@ -49,7 +49,41 @@ impl Engine {
     /// `now` part in the request from overriding it.
     pub fn assess(&self, body: &[u8], now: i64, now_fixed: bool) -> Result<Outcome, RequestError> {
         let doc = read::parse(body)?;
-        let ingested = read::read_value(&doc, &self.rules.rules, &self.profiles, now, now_fixed)?;
+        self.assess_document(&doc, now, now_fixed, &[])
+    }
+
+    /// How far back a patient-context gather must look, days: the longest
+    /// result window of the rules.
+    pub fn lookback_days(&self) -> u32 {
+        let r = &self.rules.rules;
+        let hours = r.next_tests.iter().map(|t| t.max_age_hours).fold(r.windows.result_max_age_hours, f64::max);
+        (hours / 24.0).ceil() as u32
+    }
+
+    /// The `system|code` tokens of every recognised observation code.
+    pub fn observation_code_tokens(&self) -> Vec<String> {
+        self.rules.rules.observation_codes.iter().map(|c| format!("{}|{}", c.system, c.code)).collect()
+    }
+
+    /// Assess a parsed document; `failed` lists upstream searches that failed
+    /// (the assessment then says so and asks for the missing data).
+    pub fn assess_document(
+        &self,
+        doc: &Value,
+        now: i64,
+        now_fixed: bool,
+        failed: &[crate::upstream::FailedCall],
+    ) -> Result<Outcome, RequestError> {
+        let mut ingested = read::read_value(doc, &self.rules.rules, &self.profiles, now, now_fixed)?;
+        for f in failed {
+            ingested.set_aside.push(read::SetAside {
+                expression: String::new(),
+                resource: format!("upstream {}", f.what),
+                reason: format!("failed ({}); assessed without it", f.how),
+                severity: crate::fhir::outcome::IssueSeverityLevel::Warning,
+                code: crate::fhir::outcome::IssueCode::Incomplete,
+            });
+        }
         let mut assessment = status::assess(&ingested.facts, &self.rules.rules);
         let ctx = write::OutputContext {
             rules: &self.rules,
@@ -57,7 +91,7 @@ impl Engine {
             canonical_base: &self.canonical_base,
             now: ingested.facts.now,
             // Over the parsed document, so that whitespace does not change ids.
-            request_digest: write::request_digest(&doc),
+            request_digest: write::request_digest(doc),
         };
         let workup = assessment.finding.as_ref().and_then(|f| workup::run(&ingested.facts, &self.rules.rules, f));
         if let Some(w) = &workup {
@@ -87,6 +121,9 @@ impl Engine {
             })
             .collect();
         assessment.unused.extend(rest);
+        if !failed.is_empty() && assessment.status != status::GuidanceStatus::Failure {
+            assessment.status = status::GuidanceStatus::DataRequired;
+        }
         let bundle = write::result_bundle(&ctx, &ingested, &assessment, workup.as_ref(), treatment.as_ref());
         Ok(Outcome {
             bundle,

@@ -30,6 +30,7 @@ const OPERATION: &str = include_str!("../../fhir-profiles/OperationDefinition-as
 /// Shared state.
 pub struct AppState {
     engine: Engine,
+    upstream: Option<crate::upstream::FhirClient>,
     body_limit: usize,
     ready: AtomicBool,
     capability: Value,
@@ -53,8 +54,10 @@ impl Application {
             serde_json::from_str(CAPABILITY).map_err(|e| format!("CapabilityStatement: {e}"))?;
         capability["software"]["version"] = Value::String(VERSION.to_owned());
         let operation: Value = serde_json::from_str(OPERATION).map_err(|e| format!("OperationDefinition: {e}"))?;
+        let upstream = settings.upstream.client()?;
         let state = Arc::new(AppState {
             engine,
+            upstream,
             body_limit: settings.body_limit,
             ready: AtomicBool::new(false),
             capability,
@@ -66,6 +69,7 @@ impl Application {
                 .app_data(data.clone())
                 .wrap(actix_web::middleware::from_fn(access_log))
                 .route("/fhir/$assess", web::post().to(assess))
+                .route("/fhir/Patient/{id}/$assess", web::post().to(assess_patient))
                 .route("/fhir/metadata", web::get().to(metadata))
                 .route("/fhir/OperationDefinition/assess", web::get().to(operation_definition))
                 .route("/livez", web::get().to(livez))
@@ -163,6 +167,64 @@ async fn assess(req: HttpRequest, payload: web::Payload, state: web::Data<AppSta
     }
 }
 
+fn valid_id(id: &str) -> bool {
+    (1..=64).contains(&id.len()) && id.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'-' || b == b'.')
+}
+
+/// Gather the patient's context from the configured FHIR server, then assess.
+async fn assess_patient(path: web::Path<String>, state: web::Data<AppState>) -> HttpResponse {
+    let id = path.into_inner();
+    if !valid_id(&id) {
+        return error_response(&RequestError::single(
+            400,
+            IssueCode::Value,
+            "Patient.id",
+            "The patient id is not a FHIR id ([A-Za-z0-9-.]{1,64}).",
+        ));
+    }
+    let Some(client) = &state.upstream else {
+        return error_response(&RequestError::single(
+            501,
+            IssueCode::NotSupported,
+            "",
+            "No upstream FHIR server is configured (CALCIUM_CDS_FHIR_BASE_URL); send the data to POST /fhir/$assess instead.",
+        ));
+    };
+    let now = now_unix();
+    let since_days = i64::from(state.engine.lookback_days());
+    let since =
+        crate::clinical::time::CivilDate::from_days_since_epoch(now.div_euclid(86_400) - since_days).to_string();
+    let codes = state.engine.observation_code_tokens();
+    let gathered = match client.gather(&id, &codes, &since).await {
+        Ok(g) => g,
+        Err(f) => {
+            tracing::info!(call = %f.what, timed_out = f.timed_out, "upstream call failed");
+            let status = if f.timed_out { 504 } else { 502 };
+            return error_response(&RequestError::single(
+                status,
+                IssueCode::Exception,
+                "",
+                format!("The upstream {} failed: {}.", f.what, f.how),
+            ));
+        }
+    };
+    match state.engine.assess_document(&gathered.bundle, now, false, &gathered.failed) {
+        Ok(outcome) => {
+            tracing::info!(
+                guidance_status = outcome.status,
+                failed_searches = gathered.failed.len(),
+                "patient assessment"
+            );
+            fhir_response(StatusCode::OK, &outcome.bundle)
+        }
+        Err(err) => {
+            // The server's data could not be assessed as a whole (e.g. an invalid
+            // Patient): the upstream gave an unusable answer.
+            error_response(&RequestError { status: 502, issues: err.issues })
+        }
+    }
+}
+
 async fn metadata(state: web::Data<AppState>) -> HttpResponse {
     fhir_response(StatusCode::OK, &state.capability)
 }
@@ -184,8 +246,11 @@ async fn readyz(state: web::Data<AppState>) -> HttpResponse {
 }
 
 async fn not_found(req: HttpRequest) -> HttpResponse {
-    let allowed = match req.path() {
+    let path = req.path();
+    let patient_assess = path.starts_with("/fhir/Patient/") && path.ends_with("/$assess");
+    let allowed = match path {
         "/fhir/$assess" => Some("POST"),
+        _ if patient_assess => Some("POST"),
         "/fhir/metadata" | "/fhir/OperationDefinition/assess" | "/livez" | "/readyz" => Some("GET"),
         _ => None,
     };

@@ -14,3 +14,4 @@ pub mod fhir;
 pub mod http;
 pub mod rules;
 pub mod telemetry;
+pub mod upstream;

@@ -49,6 +49,7 @@ pub async fn spawn_app_with_body_limit(body_limit: usize) -> TestApp {
         listen: "127.0.0.1:0".parse().expect("a socket address"),
         body_limit,
         rules: RuleArgs { rules: None },
+        upstream: calcium_cds::config::UpstreamArgs::default(),
     };
     let app = Application::build(&settings, engine).expect("the application builds");
     let address = format!("http://127.0.0.1:{}", app.port());

@@ -1,0 +1,242 @@
+//! The upstream FHIR client: gathers a patient's context from the EHR's FHIR
+//! server for `POST /fhir/Patient/{id}/$assess`.
+//!
+//! The searches run in parallel, each with a per-call timeout, bounded
+//! retries with jittered backoff on 429/502/503/504 and connection errors
+//! (honouring Retry-After), never past the overall deadline, and paging by
+//! `Bundle.link[relation=next]` up to a page limit. The Patient read and the
+//! calcium search are essential: if either fails the request fails with the
+//! upstream call named. Other searches may fail: the assessment goes on
+//! without them and says which failed. The HTTP client is injected
+//! (`FhirClient::new` takes a `reqwest::Client`), so tests point it at a mock
+//! server.
+
+use std::time::{Duration, Instant};
+
+use serde_json::{Value, json};
+
+/// Settings of the upstream client.
+#[derive(Debug, Clone)]
+pub struct UpstreamSettings {
+    /// Base URL of the FHIR server (ends without a slash).
+    pub base_url: String,
+    /// Static bearer token, if any (never logged).
+    pub bearer_token: Option<String>,
+    /// Per-call timeout.
+    pub call_timeout: Duration,
+    /// Overall deadline for a gather.
+    pub deadline: Duration,
+    /// Retries after the first try.
+    pub max_retries: u32,
+    /// Pages followed per search.
+    pub page_limit: u32,
+    /// `_count` per page.
+    pub page_size: u32,
+}
+
+/// One search that failed, and how.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct FailedCall {
+    /// Which search (e.g. "MedicationRequest search").
+    pub what: String,
+    /// How it failed (status, timeout, malformed body).
+    pub how: String,
+    /// Timed out (504) rather than failed (502).
+    pub timed_out: bool,
+}
+
+/// What a gather produced.
+#[derive(Debug, Clone)]
+pub struct Gathered {
+    /// A collection Bundle of the Patient and every resource found.
+    pub bundle: Value,
+    /// Non-essential searches that failed.
+    pub failed: Vec<FailedCall>,
+}
+
+/// The client.
+#[derive(Debug, Clone)]
+pub struct FhirClient {
+    http: reqwest::Client,
+    settings: UpstreamSettings,
+}
+
+fn jitter(attempt: u32) -> Duration {
+    // Exponential backoff from 100 ms with a jitter of up to 50% taken from the clock.
+    let base = 100u64.saturating_mul(1 << attempt.min(6));
+    let nanos =
+        u64::from(std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.subsec_nanos()));
+    Duration::from_millis(base + nanos % (base / 2 + 1))
+}
+
+fn retry_after(resp: &reqwest::Response) -> Option<Duration> {
+    let v = resp.headers().get(reqwest::header::RETRY_AFTER)?.to_str().ok()?;
+    v.trim().parse::<u64>().ok().map(Duration::from_secs)
+}
+
+impl FhirClient {
+    /// A client over an injected `reqwest::Client`.
+    pub fn new(http: reqwest::Client, settings: UpstreamSettings) -> Self {
+        Self { http, settings }
+    }
+
+    /// GET one URL as FHIR JSON, with retries, within the deadline.
+    async fn get(&self, url: &str, what: &str, deadline: Instant) -> Result<Value, FailedCall> {
+        let fail = |how: String, timed_out: bool| FailedCall { what: what.to_owned(), how, timed_out };
+        let mut attempt = 0;
+        loop {
+            let left = deadline.saturating_duration_since(Instant::now());
+            if left.is_zero() {
+                return Err(fail("the overall deadline passed".into(), true));
+            }
+            let mut req = self
+                .http
+                .get(url)
+                .header(reqwest::header::ACCEPT, "application/fhir+json")
+                .timeout(self.settings.call_timeout.min(left));
+            if let Some(t) = &self.settings.bearer_token {
+                req = req.bearer_auth(t);
+            }
+            let outcome = req.send().await;
+            let (retryable, wait, err) = match outcome {
+                Ok(resp) if resp.status().is_success() => {
+                    let body = resp.bytes().await.map_err(|e| fail(format!("body not read: {e}"), e.is_timeout()))?;
+                    return serde_json::from_slice::<Value>(&body)
+                        .map_err(|e| fail(format!("body is not JSON: {e}"), false));
+                }
+                Ok(resp) => {
+                    let status = resp.status().as_u16();
+                    let retryable = matches!(status, 429 | 502 | 503 | 504);
+                    (retryable, retry_after(&resp), fail(format!("HTTP {status}"), false))
+                }
+                Err(e) if e.is_timeout() => {
+                    (true, None, fail(format!("no answer within {} ms", self.settings.call_timeout.as_millis()), true))
+                }
+                Err(e) => (e.is_connect(), None, fail(format!("connection failed: {e}"), false)),
+            };
+            if !retryable || attempt >= self.settings.max_retries {
+                return Err(err);
+            }
+            let wait = wait.unwrap_or_else(|| jitter(attempt));
+            if Instant::now() + wait >= deadline {
+                return Err(FailedCall {
+                    how: format!("{} (a retry would pass the deadline)", err.how),
+                    timed_out: true,
+                    ..err
+                });
+            }
+            tokio::time::sleep(wait).await;
+            attempt += 1;
+        }
+    }
+
+    /// A search, following next links up to the page limit; the resources found.
+    async fn search(&self, url: String, what: &str, deadline: Instant) -> Result<Vec<Value>, FailedCall> {
+        let mut found = Vec::new();
+        let mut next = Some(url);
+        let mut pages = 0;
+        while let Some(url) = next.take() {
+            let page = self.get(&url, what, deadline).await?;
+            if page.get("resourceType").and_then(Value::as_str) != Some("Bundle") {
+                return Err(FailedCall {
+                    what: what.to_owned(),
+                    how: "the answer is not a Bundle".into(),
+                    timed_out: false,
+                });
+            }
+            for e in page.get("entry").and_then(Value::as_array).into_iter().flatten() {
+                let is_match = e.get("search").and_then(|s| s.get("mode")).and_then(Value::as_str) != Some("outcome");
+                if is_match && e.get("resource").is_some() {
+                    found.push(e.clone());
+                }
+            }
+            pages += 1;
+            if pages < self.settings.page_limit {
+                next = page
+                    .get("link")
+                    .and_then(Value::as_array)
+                    .into_iter()
+                    .flatten()
+                    .find(|l| l.get("relation").and_then(Value::as_str) == Some("next"))
+                    .and_then(|l| l.get("url").and_then(Value::as_str))
+                    .map(str::to_owned);
+            }
+        }
+        Ok(found)
+    }
+
+    /// Gather the patient's context. `observation_codes` are `system|code`
+    /// tokens; `since` is the earliest date searched (YYYY-MM-DD).
+    pub async fn gather(
+        &self,
+        patient_id: &str,
+        observation_codes: &[String],
+        since: &str,
+    ) -> Result<Gathered, FailedCall> {
+        let s = &self.settings;
+        let deadline = Instant::now() + s.deadline;
+        let base = s.base_url.trim_end_matches('/');
+        let id = urlencode(patient_id);
+        let count = s.page_size;
+        let codes = urlencode(&observation_codes.join(","));
+        let patient_url = format!("{base}/Patient/{id}");
+        let searches = [
+            (
+                "Observation search",
+                format!("{base}/Observation?patient={id}&code={codes}&date=ge{since}&_sort=-date&_count={count}"),
+            ),
+            ("MedicationRequest search", format!("{base}/MedicationRequest?patient={id}&status=active&_count={count}")),
+            (
+                "MedicationStatement search",
+                format!("{base}/MedicationStatement?patient={id}&status=active&_count={count}"),
+            ),
+            (
+                "MedicationAdministration search",
+                format!("{base}/MedicationAdministration?patient={id}&effective-time=ge{since}&_count={count}"),
+            ),
+            ("Condition search", format!("{base}/Condition?patient={id}&clinical-status=active&_count={count}")),
+            ("Procedure search", format!("{base}/Procedure?patient={id}&date=ge{since}&_count={count}")),
+        ];
+        let patient_call = self.get(&patient_url, "Patient read", deadline);
+        let calls =
+            futures_util::future::join_all(searches.iter().map(|(what, url)| self.search(url.clone(), what, deadline)));
+        let (patient, results) = tokio::join!(patient_call, calls);
+        let patient = patient?;
+        if patient.get("resourceType").and_then(Value::as_str) != Some("Patient") {
+            return Err(FailedCall {
+                what: "Patient read".into(),
+                how: "the answer is not a Patient".into(),
+                timed_out: false,
+            });
+        }
+        let mut entries = vec![json!({ "fullUrl": patient_url, "resource": patient })];
+        let mut failed = Vec::new();
+        for ((what, _), result) in searches.iter().zip(results) {
+            match result {
+                Ok(found) => entries.extend(found.into_iter().map(|mut e| {
+                    if let Some(o) = e.as_object_mut() {
+                        o.remove("search");
+                    }
+                    e
+                })),
+                // The calcium results are essential.
+                Err(f) if *what == "Observation search" => return Err(f),
+                Err(f) => failed.push(f),
+            }
+        }
+        Ok(Gathered { bundle: json!({ "resourceType": "Bundle", "type": "collection", "entry": entries }), failed })
+    }
+}
+
+/// Percent-encode a query value (RFC 3986 unreserved characters kept).
+pub fn urlencode(s: &str) -> String {
+    let mut out = String::with_capacity(s.len());
+    for b in s.bytes() {
+        if b.is_ascii_alphanumeric() || b"-._~".contains(&b) {
+            out.push(b as char);
+        } else {
+            out.push_str(&format!("%{b:02X}"));
+        }
+    }
+    out
+}
