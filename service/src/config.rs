@@ -110,6 +110,12 @@ pub struct UpstreamArgs {
     /// `_count` per page.
     #[arg(long, env = "CALCIUM_CDS_UPSTREAM_PAGE_SIZE", default_value_t = 100)]
     pub upstream_page_size: u32,
+    /// Write results back to the FHIR server (conditional creates; off by default).
+    #[arg(long, env = "CALCIUM_CDS_WRITE_BACK", default_value_t = false, action = clap::ArgAction::Set)]
+    pub write_back: bool,
+    /// Notification jobs waiting at most; a full queue answers 503 with Retry-After.
+    #[arg(long, env = "CALCIUM_CDS_QUEUE_CAPACITY", default_value_t = 64)]
+    pub queue_capacity: usize,
 }
 
 impl Default for UpstreamArgs {
@@ -123,6 +129,8 @@ impl Default for UpstreamArgs {
             upstream_retries: 2,
             upstream_page_limit: 5,
             upstream_page_size: 100,
+            write_back: false,
+            queue_capacity: 64,
         }
     }
 }

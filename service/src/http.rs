@@ -31,6 +31,9 @@ const OPERATION: &str = include_str!("../../fhir-profiles/OperationDefinition-as
 pub struct AppState {
     engine: Engine,
     upstream: Option<crate::upstream::FhirClient>,
+    queue: Option<tokio::sync::mpsc::Sender<crate::notify::Job>>,
+    seen: crate::notify::Seen,
+    write_back: bool,
     body_limit: usize,
     ready: AtomicBool,
     capability: Value,
@@ -55,14 +58,28 @@ impl Application {
         capability["software"]["version"] = Value::String(VERSION.to_owned());
         let operation: Value = serde_json::from_str(OPERATION).map_err(|e| format!("OperationDefinition: {e}"))?;
         let upstream = settings.upstream.client()?;
+        let (tx, rx) = tokio::sync::mpsc::channel(settings.upstream.queue_capacity.max(1));
+        let queue = upstream.is_some().then_some(tx);
         let state = Arc::new(AppState {
             engine,
             upstream,
+            queue,
+            seen: crate::notify::Seen::new(10_000),
+            write_back: settings.upstream.write_back,
             body_limit: settings.body_limit,
             ready: AtomicBool::new(false),
             capability,
             operation,
         });
+        if state.queue.is_some() {
+            let worker_state = state.clone();
+            tokio::spawn(async move {
+                let mut rx = rx;
+                while let Some(job) = rx.recv().await {
+                    work(&worker_state, job).await;
+                }
+            });
+        }
         let data = web::Data::from(state.clone());
         let server = HttpServer::new(move || {
             App::new()
@@ -70,6 +87,7 @@ impl Application {
                 .wrap(actix_web::middleware::from_fn(access_log))
                 .route("/fhir/$assess", web::post().to(assess))
                 .route("/fhir/Patient/{id}/$assess", web::post().to(assess_patient))
+                .route("/notifications", web::post().to(notifications))
                 .route("/fhir/metadata", web::get().to(metadata))
                 .route("/fhir/OperationDefinition/assess", web::get().to(operation_definition))
                 .route("/livez", web::get().to(livez))
@@ -225,6 +243,135 @@ async fn assess_patient(path: web::Path<String>, state: web::Data<AppState>) -> 
     }
 }
 
+/// Receive a notification Bundle; queue the events, answer at once.
+async fn notifications(req: HttpRequest, payload: web::Payload, state: web::Data<AppState>) -> HttpResponse {
+    if !media_type_ok(&req) {
+        return error_response(&RequestError::single(
+            415,
+            IssueCode::NotSupported,
+            "",
+            "Content-Type must be application/fhir+json.",
+        ));
+    }
+    let Ok(Ok(body)) = payload.to_bytes_limited(state.body_limit).await else {
+        return error_response(&RequestError::single(
+            413,
+            IssueCode::TooCostly,
+            "",
+            "The notification is too large or could not be read.",
+        ));
+    };
+    let doc = match crate::fhir::read::parse(&body) {
+        Ok(d) => d,
+        Err(e) => return error_response(&e),
+    };
+    let notice = match crate::notify::parse(&doc) {
+        Ok(n) => n,
+        Err(e) => return error_response(&e),
+    };
+    let info = |status: StatusCode, text: String| {
+        fhir_response(
+            status,
+            &crate::fhir::outcome::operation_outcome(
+                None,
+                &[crate::fhir::outcome::Issue {
+                    severity: crate::fhir::outcome::IssueSeverityLevel::Information,
+                    code: IssueCode::Informational,
+                    expression: Vec::new(),
+                    diagnostics: text,
+                }],
+            ),
+        )
+    };
+    let jobs = match notice {
+        crate::notify::Notice::Acknowledge(kind) => return info(StatusCode::OK, format!("{kind} received")),
+        crate::notify::Notice::Events(jobs) => jobs,
+    };
+    let Some(queue) = &state.queue else {
+        return error_response(&RequestError::single(
+            501,
+            IssueCode::NotSupported,
+            "",
+            "No upstream FHIR server is configured (CALCIUM_CDS_FHIR_BASE_URL): events cannot be worked on.",
+        ));
+    };
+    let (mut queued, mut duplicates) = (0, 0);
+    for job in jobs {
+        if state.seen.contains(&job.key) {
+            duplicates += 1;
+            continue;
+        }
+        let key = job.key.clone();
+        match queue.try_send(job) {
+            Ok(()) => {
+                state.seen.insert(key);
+                queued += 1;
+            }
+            Err(_) => {
+                tracing::info!(queued, "notification queue full");
+                let mut res = error_response(&RequestError::single(
+                    503,
+                    IssueCode::Exception,
+                    "",
+                    format!(
+                        "The work queue is full; {queued} event(s) of this delivery were queued, please redeliver."
+                    ),
+                ));
+                res.headers_mut().insert(header::RETRY_AFTER, HeaderValue::from_static("5"));
+                return res;
+            }
+        }
+    }
+    tracing::info!(queued, duplicates, "notification");
+    info(StatusCode::ACCEPTED, format!("{queued} event(s) queued, {duplicates} already received"))
+}
+
+/// Work one event: find the patient, gather, assess, and write back when there is something to say.
+async fn work(state: &AppState, job: crate::notify::Job) {
+    let Some(client) = &state.upstream else { return };
+    let patient = match &job.patient_id {
+        Some(p) => Some(p.clone()),
+        None => match client.read(&job.focus).await {
+            Ok(r) => r
+                .get("subject")
+                .and_then(|s| s.get("reference"))
+                .and_then(Value::as_str)
+                .and_then(|s| s.rsplit_once("Patient/").map(|(_, id)| id.to_owned())),
+            Err(f) => {
+                tracing::warn!(call = %f.what, "event focus could not be read");
+                None
+            }
+        },
+    };
+    let Some(patient) = patient.filter(|p| valid_id(p)) else { return };
+    let now = now_unix();
+    let since = crate::clinical::time::CivilDate::from_days_since_epoch(
+        now.div_euclid(86_400) - i64::from(state.engine.lookback_days()),
+    )
+    .to_string();
+    let gathered = match client.gather(&patient, &state.engine.observation_code_tokens(), &since).await {
+        Ok(g) => g,
+        Err(f) => {
+            tracing::warn!(call = %f.what, "gather for an event failed");
+            return;
+        }
+    };
+    let Ok(outcome) = state.engine.assess_document(&gathered.bundle, now, false, &gathered.failed) else { return };
+    if state.write_back && crate::notify::worth_writing(&outcome.bundle) {
+        let digest = crate::fhir::write::request_digest(&gathered.bundle);
+        let tx = crate::notify::transaction(
+            &outcome.bundle,
+            &digest,
+            &state.engine.rules.sha256,
+            &state.engine.canonical_base,
+        );
+        match client.post_transaction(&tx).await {
+            Ok(_) => tracing::info!("results written back"),
+            Err(f) => tracing::warn!(how = %f.how, "write-back failed"),
+        }
+    }
+}
+
 async fn metadata(state: web::Data<AppState>) -> HttpResponse {
     fhir_response(StatusCode::OK, &state.capability)
 }
@@ -249,7 +396,7 @@ async fn not_found(req: HttpRequest) -> HttpResponse {
     let path = req.path();
     let patient_assess = path.starts_with("/fhir/Patient/") && path.ends_with("/$assess");
     let allowed = match path {
-        "/fhir/$assess" => Some("POST"),
+        "/fhir/$assess" | "/notifications" => Some("POST"),
         _ if patient_assess => Some("POST"),
         "/fhir/metadata" | "/fhir/OperationDefinition/assess" | "/livez" | "/readyz" => Some("GET"),
         _ => None,

@@ -16,7 +16,7 @@ use std::time::{Duration, Instant};
 use serde_json::{Value, json};
 
 /// Settings of the upstream client.
-#[derive(Debug, Clone)]
+#[derive(Clone)]
 pub struct UpstreamSettings {
     /// Base URL of the FHIR server (ends without a slash).
     pub base_url: String,
@@ -32,6 +32,20 @@ pub struct UpstreamSettings {
     pub page_limit: u32,
     /// `_count` per page.
     pub page_size: u32,
+}
+
+impl std::fmt::Debug for UpstreamSettings {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("UpstreamSettings")
+            .field("base_url", &self.base_url)
+            .field("bearer_token", &self.bearer_token.as_ref().map(|_| "***"))
+            .field("call_timeout", &self.call_timeout)
+            .field("deadline", &self.deadline)
+            .field("max_retries", &self.max_retries)
+            .field("page_limit", &self.page_limit)
+            .field("page_size", &self.page_size)
+            .finish()
+    }
 }
 
 /// One search that failed, and how.
@@ -135,7 +149,16 @@ impl FhirClient {
         let mut found = Vec::new();
         let mut next = Some(url);
         let mut pages = 0;
+        let base = self.settings.base_url.trim_end_matches('/');
         while let Some(url) = next.take() {
+            // Never follow (or send the token to) a link outside the configured server.
+            if !(url == base || url.starts_with(&format!("{base}/")) || url.starts_with(&format!("{base}?"))) {
+                return Err(FailedCall {
+                    what: what.to_owned(),
+                    how: "a next link points outside the configured FHIR server; it was not followed".into(),
+                    timed_out: false,
+                });
+            }
             let page = self.get(&url, what, deadline).await?;
             if page.get("resourceType").and_then(Value::as_str) != Some("Bundle") {
                 return Err(FailedCall {
@@ -163,6 +186,53 @@ impl FhirClient {
             }
         }
         Ok(found)
+    }
+
+    /// Read one resource by reference (relative to the base, or absolute).
+    pub async fn read(&self, reference: &str) -> Result<Value, FailedCall> {
+        let url = if reference.contains("://") {
+            reference.to_owned()
+        } else {
+            format!("{}/{}", self.settings.base_url.trim_end_matches('/'), reference.trim_start_matches('/'))
+        };
+        self.get(&url, &format!("read of {reference}"), Instant::now() + self.settings.deadline).await
+    }
+
+    /// POST a transaction Bundle. Safe to retry: every entry is a conditional
+    /// create (ifNoneExist), so a retry creates nothing twice.
+    pub async fn post_transaction(&self, bundle: &Value) -> Result<Value, FailedCall> {
+        let deadline = Instant::now() + self.settings.deadline;
+        let fail = |how: String, timed_out: bool| FailedCall { what: "write-back transaction".into(), how, timed_out };
+        let mut attempt = 0;
+        loop {
+            let left = deadline.saturating_duration_since(Instant::now());
+            let mut req = self
+                .http
+                .post(self.settings.base_url.trim_end_matches('/'))
+                .header(reqwest::header::CONTENT_TYPE, "application/fhir+json")
+                .header(reqwest::header::ACCEPT, "application/fhir+json")
+                .timeout(self.settings.call_timeout.min(left))
+                .body(bundle.to_string());
+            if let Some(t) = &self.settings.bearer_token {
+                req = req.bearer_auth(t);
+            }
+            let (retryable, err) = match req.send().await {
+                Ok(resp) if resp.status().is_success() => {
+                    let body = resp.bytes().await.map_err(|e| fail(format!("body not read: {e}"), false))?;
+                    return Ok(serde_json::from_slice(&body).unwrap_or(Value::Null));
+                }
+                Ok(resp) => {
+                    let s = resp.status().as_u16();
+                    (matches!(s, 429 | 502 | 503 | 504), fail(format!("HTTP {s}"), false))
+                }
+                Err(e) => (e.is_timeout() || e.is_connect(), fail(format!("{e}"), e.is_timeout())),
+            };
+            if !retryable || attempt >= self.settings.max_retries || Instant::now() + jitter(attempt) >= deadline {
+                return Err(err);
+            }
+            tokio::time::sleep(jitter(attempt)).await;
+            attempt += 1;
+        }
     }
 
     /// Gather the patient's context. `observation_codes` are `system|code`

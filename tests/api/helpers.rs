@@ -60,6 +60,36 @@ pub async fn spawn_app_with_body_limit(body_limit: usize) -> TestApp {
     TestApp { address, client }
 }
 
+/// Start the service with an upstream FHIR server at `base_url` (optionally
+/// with a static bearer token) and every other upstream setting at its
+/// default; see `spawn_app_with_upstream_args` to choose them.
+pub async fn spawn_app_with_upstream(base_url: &str, token: Option<&str>) -> TestApp {
+    spawn_app_with_upstream_args(calcium_cds::config::UpstreamArgs {
+        fhir_base_url: Some(base_url.to_owned()),
+        fhir_token: token.map(|t| calcium_cds::config::Secret(t.to_owned())),
+        ..calcium_cds::config::UpstreamArgs::default()
+    })
+    .await
+}
+
+/// Start the service with chosen upstream settings (`ServeArgs.upstream`).
+pub async fn spawn_app_with_upstream_args(upstream: calcium_cds::config::UpstreamArgs) -> TestApp {
+    let rules = load_rules(None).expect("the embedded rules load");
+    let engine = Engine::new(rules).expect("the engine builds");
+    let settings = ServeArgs {
+        listen: "127.0.0.1:0".parse().expect("a socket address"),
+        body_limit: DEFAULT_BODY_LIMIT,
+        rules: RuleArgs { rules: None },
+        upstream,
+    };
+    let app = Application::build(&settings, engine).expect("the application builds");
+    let address = format!("http://127.0.0.1:{}", app.port());
+    tokio::spawn(app.run_until_stopped());
+    let client =
+        reqwest::Client::builder().redirect(reqwest::redirect::Policy::none()).build().expect("an HTTP client");
+    TestApp { address, client }
+}
+
 impl TestApp {
     /// POST a body to `/fhir/$assess` with the given Content-Type.
     pub async fn post_assess(&self, body: impl Into<reqwest::Body>, content_type: &str) -> reqwest::Response {

@@ -17,3 +17,7 @@ mod reference_treatment;
 mod clinical;
 // Treatment proposals over HTTP: weight-based draft doses, their order, and each safety check.
 mod treatment;
+// POST /fhir/Patient/{id}/$assess against a wiremock EHR: what we send, paging, retries, timeouts, failures.
+mod upstream;
+// Result notifications: queue, duplicates, overflow, idempotent write-back (wiremock as the EHR).
+mod notify;
