@@ -25,7 +25,7 @@ pub enum Command {
     /// Assess one request (a Bundle or Parameters resource) and print the result Bundle.
     Assess(AssessArgs),
     /// Run the HTTP service.
-    Serve(ServeArgs),
+    Serve(Box<ServeArgs>),
 }
 
 /// Options shared by every subcommand.
@@ -116,7 +116,30 @@ pub struct UpstreamArgs {
     /// Notification jobs waiting at most; a full queue answers 503 with Retry-After.
     #[arg(long, env = "CALCIUM_CDS_QUEUE_CAPACITY", default_value_t = 64)]
     pub queue_capacity: usize,
+    /// SMART Backend Services: the token endpoint (enables SMART authorization).
+    #[arg(long = "smart-token-url", env = "CALCIUM_CDS_SMART_TOKEN_URL")]
+    pub smart_token_url: Option<String>,
+    /// SMART Backend Services: the registered client id.
+    #[arg(long = "smart-client-id", env = "CALCIUM_CDS_SMART_CLIENT_ID")]
+    pub smart_client_id: Option<String>,
+    /// SMART Backend Services: the private key (PEM) that signs the client assertion.
+    #[arg(long = "smart-key-file", env = "CALCIUM_CDS_SMART_KEY_FILE")]
+    pub smart_key_file: Option<PathBuf>,
+    /// SMART Backend Services: the key id (`kid`) of that key in the registered JWK Set.
+    #[arg(long = "smart-key-id", env = "CALCIUM_CDS_SMART_KEY_ID")]
+    pub smart_key_id: Option<String>,
+    /// SMART Backend Services: RS384 or ES384.
+    #[arg(long = "smart-alg", env = "CALCIUM_CDS_SMART_ALG", default_value = "ES384")]
+    pub smart_alg: String,
+    /// SMART Backend Services: scopes requested (space separated).
+    #[arg(long = "smart-scope", env = "CALCIUM_CDS_SMART_SCOPE", default_value = DEFAULT_SMART_SCOPE)]
+    pub smart_scope: String,
 }
+
+/// The read scopes the gather needs (SMART v1 scope syntax, the most widely accepted).
+/// With write-back on, a site adds the write scopes its server wants.
+pub const DEFAULT_SMART_SCOPE: &str = "system/Patient.read system/Observation.read system/MedicationRequest.read \
+system/MedicationStatement.read system/MedicationAdministration.read system/Condition.read system/Procedure.read";
 
 impl Default for UpstreamArgs {
     fn default() -> Self {
@@ -131,6 +154,12 @@ impl Default for UpstreamArgs {
             upstream_page_size: 100,
             write_back: false,
             queue_capacity: 64,
+            smart_token_url: None,
+            smart_client_id: None,
+            smart_key_file: None,
+            smart_key_id: None,
+            smart_alg: "ES384".into(),
+            smart_scope: DEFAULT_SMART_SCOPE.into(),
         }
     }
 }
@@ -154,6 +183,14 @@ impl UpstreamArgs {
             ),
             (None, None) => None,
         };
+        let auth = match (token, self.smart()?) {
+            (Some(_), Some(_)) => {
+                return Err("both a static token and SMART Backend Services are configured; choose one".into());
+            }
+            (Some(t), None) => crate::upstream::Auth::Static(t),
+            (None, Some(source)) => crate::upstream::Auth::Smart(std::sync::Arc::new(source)),
+            (None, None) => crate::upstream::Auth::None,
+        };
         let http = reqwest::Client::builder()
             .pool_idle_timeout(std::time::Duration::from_secs(90))
             .build()
@@ -162,7 +199,7 @@ impl UpstreamArgs {
             http,
             crate::upstream::UpstreamSettings {
                 base_url: base.trim_end_matches('/').to_owned(),
-                bearer_token: token,
+                auth,
                 call_timeout: std::time::Duration::from_millis(self.upstream_timeout_ms),
                 deadline: std::time::Duration::from_millis(self.upstream_deadline_ms),
                 max_retries: self.upstream_retries,
@@ -170,6 +207,51 @@ impl UpstreamArgs {
                 page_size: self.upstream_page_size.max(1),
             },
         )))
+    }
+}
+
+impl UpstreamArgs {
+    /// The SMART token source, when configured; an error naming what is missing or wrong.
+    fn smart(&self) -> Result<Option<crate::smart::TokenSource>, String> {
+        let given = [
+            ("CALCIUM_CDS_SMART_TOKEN_URL", self.smart_token_url.is_some()),
+            ("CALCIUM_CDS_SMART_CLIENT_ID", self.smart_client_id.is_some()),
+            ("CALCIUM_CDS_SMART_KEY_FILE", self.smart_key_file.is_some()),
+            ("CALCIUM_CDS_SMART_KEY_ID", self.smart_key_id.is_some()),
+        ];
+        if given.iter().all(|(_, set)| !set) {
+            return Ok(None);
+        }
+        let missing: Vec<&str> = given.iter().filter(|(_, set)| !set).map(|(name, _)| *name).collect();
+        if !missing.is_empty() {
+            return Err(format!("SMART Backend Services is partly configured; missing {}", missing.join(", ")));
+        }
+        let (Some(url), Some(client_id), Some(key_file), Some(key_id)) =
+            (&self.smart_token_url, &self.smart_client_id, &self.smart_key_file, &self.smart_key_id)
+        else {
+            return Ok(None);
+        };
+        let parsed =
+            reqwest::Url::parse(url).map_err(|e| format!("CALCIUM_CDS_SMART_TOKEN_URL '{url}' is not a URL: {e}"))?;
+        if !matches!(parsed.scheme(), "http" | "https") {
+            return Err(format!("CALCIUM_CDS_SMART_TOKEN_URL must be http or https, not {}", parsed.scheme()));
+        }
+        let alg =
+            self.smart_alg.parse::<crate::smart::SigningAlg>().map_err(|e| format!("CALCIUM_CDS_SMART_ALG: {e}"))?;
+        let pem = std::fs::read(key_file)
+            .map_err(|e| format!("cannot read the SMART key file {}: {e}", key_file.display()))?;
+        crate::smart::TokenSource::new(
+            crate::smart::SmartSettings {
+                token_url: url.clone(),
+                client_id: client_id.clone(),
+                scope: self.smart_scope.clone(),
+                key_id: key_id.clone(),
+                alg,
+            },
+            &pem,
+        )
+        .map(Some)
+        .map_err(|e| format!("CALCIUM_CDS_SMART_KEY_FILE {}: {e}", key_file.display()))
     }
 }
 

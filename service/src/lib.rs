@@ -14,5 +14,6 @@ pub mod fhir;
 pub mod http;
 pub mod notify;
 pub mod rules;
+pub mod smart;
 pub mod telemetry;
 pub mod upstream;

@@ -20,8 +20,8 @@ use serde_json::{Value, json};
 pub struct UpstreamSettings {
     /// Base URL of the FHIR server (ends without a slash).
     pub base_url: String,
-    /// Static bearer token, if any (never logged).
-    pub bearer_token: Option<String>,
+    /// How the client authorizes itself (tokens are never logged).
+    pub auth: Auth,
     /// Per-call timeout.
     pub call_timeout: Duration,
     /// Overall deadline for a gather.
@@ -38,13 +38,35 @@ impl std::fmt::Debug for UpstreamSettings {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
         f.debug_struct("UpstreamSettings")
             .field("base_url", &self.base_url)
-            .field("bearer_token", &self.bearer_token.as_ref().map(|_| "***"))
+            .field("auth", &self.auth)
             .field("call_timeout", &self.call_timeout)
             .field("deadline", &self.deadline)
             .field("max_retries", &self.max_retries)
             .field("page_limit", &self.page_limit)
             .field("page_size", &self.page_size)
             .finish()
+    }
+}
+
+/// How the client authorizes itself to the FHIR server.
+#[derive(Clone, Default)]
+pub enum Auth {
+    /// No Authorization header.
+    #[default]
+    None,
+    /// A static bearer token.
+    Static(String),
+    /// SMART Backend Services (client_credentials with a signed JWT assertion).
+    Smart(std::sync::Arc<crate::smart::TokenSource>),
+}
+
+impl std::fmt::Debug for Auth {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            Self::None => f.write_str("None"),
+            Self::Static(_) => f.write_str("Static(***)"),
+            Self::Smart(s) => f.debug_tuple("Smart").field(s).finish(),
+        }
     }
 }
 
@@ -94,25 +116,45 @@ impl FhirClient {
         Self { http, settings }
     }
 
+    /// The bearer token to send, if any.
+    async fn token(&self, timeout: Duration) -> Result<Option<String>, String> {
+        match &self.settings.auth {
+            Auth::None => Ok(None),
+            Auth::Static(t) => Ok(Some(t.clone())),
+            Auth::Smart(source) => source.token(&self.http, timeout).await.map(Some),
+        }
+    }
+
     /// GET one URL as FHIR JSON, with retries, within the deadline.
     async fn get(&self, url: &str, what: &str, deadline: Instant) -> Result<Value, FailedCall> {
         let fail = |how: String, timed_out: bool| FailedCall { what: what.to_owned(), how, timed_out };
         let mut attempt = 0;
+        let mut refreshed = false;
         loop {
             let left = deadline.saturating_duration_since(Instant::now());
             if left.is_zero() {
                 return Err(fail("the overall deadline passed".into(), true));
             }
-            let mut req = self
-                .http
-                .get(url)
-                .header(reqwest::header::ACCEPT, "application/fhir+json")
-                .timeout(self.settings.call_timeout.min(left));
-            if let Some(t) = &self.settings.bearer_token {
+            let timeout = self.settings.call_timeout.min(left);
+            let token = self.token(timeout).await.map_err(|how| fail(how, false))?;
+            let mut req = self.http.get(url).header(reqwest::header::ACCEPT, "application/fhir+json").timeout(timeout);
+            if let Some(t) = &token {
                 req = req.bearer_auth(t);
             }
             let outcome = req.send().await;
             let (retryable, wait, err) = match outcome {
+                Ok(resp) if resp.status() == reqwest::StatusCode::UNAUTHORIZED && !refreshed => {
+                    // A SMART token may expire or be revoked mid-flight: fetch a new one, once.
+                    if let (Auth::Smart(source), Some(used)) = (&self.settings.auth, &token) {
+                        source.invalidate(used).await;
+                        refreshed = true;
+                        continue;
+                    }
+                    (false, None, fail("HTTP 401".into(), false))
+                }
+                Ok(resp) if resp.status() == reqwest::StatusCode::UNAUTHORIZED => {
+                    (false, None, fail("HTTP 401 (also after a token refresh)".into(), false))
+                }
                 Ok(resp) if resp.status().is_success() => {
                     let body = resp.bytes().await.map_err(|e| fail(format!("body not read: {e}"), e.is_timeout()))?;
                     return serde_json::from_slice::<Value>(&body)
@@ -204,19 +246,31 @@ impl FhirClient {
         let deadline = Instant::now() + self.settings.deadline;
         let fail = |how: String, timed_out: bool| FailedCall { what: "write-back transaction".into(), how, timed_out };
         let mut attempt = 0;
+        let mut refreshed = false;
         loop {
             let left = deadline.saturating_duration_since(Instant::now());
+            let timeout = self.settings.call_timeout.min(left);
+            let token = self.token(timeout).await.map_err(|how| fail(how, false))?;
             let mut req = self
                 .http
                 .post(self.settings.base_url.trim_end_matches('/'))
                 .header(reqwest::header::CONTENT_TYPE, "application/fhir+json")
                 .header(reqwest::header::ACCEPT, "application/fhir+json")
-                .timeout(self.settings.call_timeout.min(left))
+                .timeout(timeout)
                 .body(bundle.to_string());
-            if let Some(t) = &self.settings.bearer_token {
+            if let Some(t) = &token {
                 req = req.bearer_auth(t);
             }
             let (retryable, err) = match req.send().await {
+                Ok(resp) if resp.status() == reqwest::StatusCode::UNAUTHORIZED && !refreshed => {
+                    // Safe to resend: every entry is a conditional create.
+                    if let (Auth::Smart(source), Some(used)) = (&self.settings.auth, &token) {
+                        source.invalidate(used).await;
+                        refreshed = true;
+                        continue;
+                    }
+                    (false, fail("HTTP 401".into(), false))
+                }
                 Ok(resp) if resp.status().is_success() => {
                     let body = resp.bytes().await.map_err(|e| fail(format!("body not read: {e}"), false))?;
                     return Ok(serde_json::from_slice(&body).unwrap_or(Value::Null));

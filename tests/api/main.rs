@@ -21,3 +21,6 @@ mod treatment;
 mod upstream;
 // Result notifications: queue, duplicates, overflow, idempotent write-back (wiremock as the EHR).
 mod notify;
+
+/// SMART Backend Services authorization.
+mod smart;

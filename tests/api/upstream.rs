@@ -23,16 +23,16 @@ use crate::helpers::{
 };
 
 /// The invented patient's id on the EHR.
-const PATIENT_ID: &str = "lch-juniper-5";
+pub(crate) const PATIENT_ID: &str = "lch-juniper-5";
 /// The invented static bearer token.
 const TOKEN: &str = "larkspur-ehr-7f3a9c21";
 /// Mocks that stand in for "anything else" rank below a test's own mocks.
-const FALLBACK: u8 = 10;
+pub(crate) const FALLBACK: u8 = 10;
 
 // ---------------------------------------------------------------------------
 // EHR data
 
-fn patient() -> Value {
+pub(crate) fn patient() -> Value {
     json!({
         "resourceType": "Patient",
         "id": PATIENT_ID,
@@ -58,7 +58,7 @@ fn observation(id: &str, loinc: &str, display: &str, value: f64, unit: &str, sub
 }
 
 /// Ionized calcium (LOINC 1994-3) in mmol/L for the patient.
-fn ionized_calcium(id: &str, mmol_l: f64) -> Value {
+pub(crate) fn ionized_calcium(id: &str, mmol_l: f64) -> Value {
     observation(
         id,
         "1994-3",
@@ -70,14 +70,14 @@ fn ionized_calcium(id: &str, mmol_l: f64) -> Value {
 }
 
 /// Body weight (LOINC 29463-7) for the patient.
-fn weight(id: &str, kg: f64) -> Value {
+pub(crate) fn weight(id: &str, kg: f64) -> Value {
     let mut w = observation(id, "29463-7", "Body weight", kg, "kg", &format!("Patient/{PATIENT_ID}"));
     w["category"] = json!([{ "coding": [{ "system": "http://terminology.hl7.org/CodeSystem/observation-category", "code": "vital-signs" }] }]);
     w
 }
 
 /// A searchset page as a FHIR server sends it: absolute fullUrls, search.mode match, optional next link.
-fn searchset(base: &str, resources: &[Value], next: Option<String>) -> Value {
+pub(crate) fn searchset(base: &str, resources: &[Value], next: Option<String>) -> Value {
     let entries: Vec<Value> = resources
         .iter()
         .map(|r| {
@@ -96,7 +96,7 @@ fn searchset(base: &str, resources: &[Value], next: Option<String>) -> Value {
 }
 
 /// A FHIR JSON answer.
-fn fhir(status: u16, body: &Value) -> ResponseTemplate {
+pub(crate) fn fhir(status: u16, body: &Value) -> ResponseTemplate {
     ResponseTemplate::new(status).set_body_raw(body.to_string(), FHIR_JSON)
 }
 
@@ -145,7 +145,7 @@ fn no_authorization(request: &Request) -> bool {
 }
 
 /// Matches the first page of the Observation search with every parameter it must carry.
-fn observation_search() -> wiremock::MockBuilder {
+pub(crate) fn observation_search() -> wiremock::MockBuilder {
     Mock::given(method("GET"))
         .and(path("/Observation"))
         .and(query_param("patient", PATIENT_ID))
@@ -156,7 +156,7 @@ fn observation_search() -> wiremock::MockBuilder {
         .and(header("accept", FHIR_JSON))
 }
 
-async fn mount_patient(server: &MockServer) {
+pub(crate) async fn mount_patient(server: &MockServer) {
     Mock::given(method("GET"))
         .and(path(format!("/Patient/{PATIENT_ID}")))
         .and(header("accept", FHIR_JSON))
@@ -168,7 +168,7 @@ async fn mount_patient(server: &MockServer) {
 }
 
 /// Each other search answers an empty searchset (below the test's own mocks).
-async fn mount_empty_other_searches(server: &MockServer) {
+pub(crate) async fn mount_empty_other_searches(server: &MockServer) {
     for (resource, extra) in OTHER_SEARCHES {
         let mut mock = Mock::given(method("GET"))
             .and(path(format!("/{resource}")))
@@ -194,11 +194,11 @@ async fn mock_ehr() -> MockServer {
     server
 }
 
-fn args(server: &MockServer) -> UpstreamArgs {
+pub(crate) fn args(server: &MockServer) -> UpstreamArgs {
     UpstreamArgs { fhir_base_url: Some(server.uri()), ..UpstreamArgs::default() }
 }
 
-async fn post_patient(app: &TestApp, id: &str) -> (u16, Value) {
+pub(crate) async fn post_patient(app: &TestApp, id: &str) -> (u16, Value) {
     let response = app
         .client
         .post(format!("{}/fhir/Patient/{id}/$assess", app.address))
@@ -212,7 +212,7 @@ async fn post_patient(app: &TestApp, id: &str) -> (u16, Value) {
 }
 
 /// Every diagnostics text of an OperationOutcome, joined.
-fn diagnostics(oo: &Value) -> String {
+pub(crate) fn diagnostics(oo: &Value) -> String {
     assert_eq!(oo["resourceType"], "OperationOutcome", "{oo}");
     oo["issue"]
         .as_array()
@@ -809,7 +809,7 @@ fn the_client_refuses_a_base_url_that_is_not_http() {
     assert!(UpstreamArgs::default().client().expect("no URL is no client").is_none());
 }
 
-fn temp_file(name: &str, contents: &str) -> std::path::PathBuf {
+pub(crate) fn temp_file(name: &str, contents: &str) -> std::path::PathBuf {
     let nanos = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.as_nanos());
     let path = std::env::temp_dir().join(format!("calcium-cds-{name}-{}-{nanos}", std::process::id()));
     std::fs::write(&path, contents).expect("the temporary file is written");
