@@ -328,48 +328,55 @@ async fn notifications(req: HttpRequest, payload: web::Payload, state: web::Data
 
 /// Work one event: find the patient, gather, assess, and write back when there is something to say.
 async fn work(state: &AppState, job: crate::notify::Job) {
-    let Some(client) = &state.upstream else { return };
-    let patient = match &job.patient_id {
-        Some(p) => Some(p.clone()),
-        None => match client.read(&job.focus).await {
-            Ok(r) => r
-                .get("subject")
-                .and_then(|s| s.get("reference"))
-                .and_then(Value::as_str)
-                .and_then(|s| s.rsplit_once("Patient/").map(|(_, id)| id.to_owned())),
-            Err(f) => {
-                tracing::warn!(call = %f.what, "event focus could not be read");
-                None
-            }
-        },
+    match work_event(state, &job).await {
+        Ok(done) => tracing::info!(done, "notification event worked"),
+        Err(why) => {
+            // The 202 went out already: forget the delivery so that a redelivery is worked again.
+            state.seen.remove(&job.key);
+            tracing::warn!(why = %why, "notification event not completed; a redelivery will be worked");
+        }
+    }
+}
+
+/// Gather, assess and (when on and worth it) write back one event; what was done,
+/// or why it failed. Log text carries no patient data.
+async fn work_event(state: &AppState, job: &crate::notify::Job) -> Result<&'static str, String> {
+    let Some(client) = &state.upstream else { return Err("no upstream FHIR server".into()) };
+    let focus = match &job.resource {
+        Some(r) => r.clone(),
+        // The reference is not logged (it names a patient's resource).
+        None => client.read(&job.focus).await.map_err(|f| format!("read of the event's focus: {}", f.how))?,
     };
-    let Some(patient) = patient.filter(|p| valid_id(p)) else { return };
+    let patient = match crate::notify::relevant_patient(&focus, &state.engine.observation_code_tokens()) {
+        Ok(p) if valid_id(&p) => p,
+        Ok(_) => return Ok("ignored: the focus names a patient id that is not a FHIR id"),
+        Err(crate::notify::NotRelevant::NotAnObservation(_)) => return Ok("ignored: the focus is not an Observation"),
+        Err(crate::notify::NotRelevant::OtherCode) => {
+            return Ok("ignored: the Observation has none of the codes the rules read");
+        }
+        Err(crate::notify::NotRelevant::NoPatient) => return Ok("ignored: the Observation names no patient"),
+    };
     let now = now_unix();
     let since = crate::clinical::time::CivilDate::from_days_since_epoch(
         now.div_euclid(86_400) - i64::from(state.engine.lookback_days()),
     )
     .to_string();
-    let gathered = match client.gather(&patient, &state.engine.observation_code_tokens(), &since).await {
-        Ok(g) => g,
-        Err(f) => {
-            tracing::warn!(call = %f.what, "gather for an event failed");
-            return;
-        }
-    };
-    let Ok(outcome) = state.engine.assess_document(&gathered.bundle, now, false, &gathered.failed) else { return };
-    if state.write_back && crate::notify::worth_writing(&outcome.bundle) {
-        let digest = crate::fhir::write::request_digest(&gathered.bundle);
-        let tx = crate::notify::transaction(
-            &outcome.bundle,
-            &digest,
-            &state.engine.rules.sha256,
-            &state.engine.canonical_base,
-        );
-        match client.post_transaction(&tx).await {
-            Ok(_) => tracing::info!("results written back"),
-            Err(f) => tracing::warn!(how = %f.how, "write-back failed"),
-        }
+    let gathered = client
+        .gather(&patient, &state.engine.observation_code_tokens(), &since)
+        .await
+        .map_err(|f| format!("{}: {}", f.what, f.how))?;
+    let outcome = state
+        .engine
+        .assess_document(&gathered.bundle, now, false, &gathered.failed)
+        .map_err(|_| "the gathered data could not be assessed".to_owned())?;
+    if !(state.write_back && crate::notify::worth_writing(&outcome.bundle)) {
+        return Ok("assessed; nothing written");
     }
+    let digest = crate::fhir::write::request_digest(&gathered.bundle);
+    let tx =
+        crate::notify::transaction(&outcome.bundle, &digest, &state.engine.rules.sha256, &state.engine.canonical_base);
+    client.post_transaction(&tx).await.map_err(|f| format!("{}: {}", f.what, f.how))?;
+    Ok("assessed and written back")
 }
 
 async fn metadata(state: web::Data<AppState>) -> HttpResponse {

@@ -18,8 +18,8 @@ use crate::fhir::outcome::{IssueCode, RequestError};
 pub struct Job {
     /// The focus reference (e.g. `Observation/123` or an absolute URL).
     pub focus: String,
-    /// The patient id when the payload carried the resource.
-    pub patient_id: Option<String>,
+    /// The focus resource when the payload carried it (full-resource payloads).
+    pub resource: Option<Value>,
     /// Dedupe key: subscription and event number.
     pub key: String,
 }
@@ -86,19 +86,53 @@ pub fn parse(doc: &Value) -> Result<Notice, RequestError> {
         if number.is_empty() {
             return Err(bad("Bundle.entry[0].resource.parameter", "An event has no event-number."));
         }
-        // Full-resource payloads carry the focus: take the patient from it.
-        let patient_id = entries.iter().skip(1).find_map(|e| {
+        // Full-resource payloads carry the focus.
+        let resource = entries.iter().skip(1).find_map(|e| {
             let url = str_at(e, "fullUrl").unwrap_or("");
             let r = e.get("resource")?;
             let id = format!("{}/{}", str_at(r, "resourceType")?, str_at(r, "id").unwrap_or(""));
-            (url == focus || url.ends_with(&format!("/{focus}")) || id == focus)
-                .then(|| str_at(r.get("subject")?, "reference"))
-                .flatten()
-                .and_then(|s| s.rsplit_once("Patient/").map(|(_, id)| id.to_owned()))
+            (url == focus || url.ends_with(&format!("/{focus}")) || id == focus).then(|| r.clone())
         });
-        jobs.push(Job { focus: focus.to_owned(), patient_id, key: format!("{subscription}#{number}") });
+        jobs.push(Job { focus: focus.to_owned(), resource, key: format!("{subscription}#{number}") });
     }
     Ok(Notice::Events(jobs))
+}
+
+/// Why an event leads to no assessment.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum NotRelevant {
+    /// The focus is not an Observation.
+    NotAnObservation(String),
+    /// The Observation carries none of the codes the rules read.
+    OtherCode,
+    /// The Observation names no patient subject.
+    NoPatient,
+}
+
+/// The patient of an event's focus, when it is an Observation with one of
+/// `known_codes` (`system|code` tokens: the analytes and vital signs the
+/// rules read; a new magnesium or weight changes the assessment too).
+pub fn relevant_patient(focus: &Value, known_codes: &[String]) -> Result<String, NotRelevant> {
+    let kind = str_at(focus, "resourceType").unwrap_or("");
+    if kind != "Observation" {
+        return Err(NotRelevant::NotAnObservation(kind.to_owned()));
+    }
+    let coded = focus
+        .get("code")
+        .and_then(|c| c.get("coding"))
+        .and_then(Value::as_array)
+        .into_iter()
+        .flatten()
+        .filter_map(|c| Some(format!("{}|{}", str_at(c, "system")?, str_at(c, "code")?)))
+        .any(|t| known_codes.contains(&t));
+    if !coded {
+        return Err(NotRelevant::OtherCode);
+    }
+    focus
+        .get("subject")
+        .and_then(|s| str_at(s, "reference"))
+        .and_then(|s| s.rsplit_once("Patient/").map(|(_, id)| id.to_owned()))
+        .ok_or(NotRelevant::NoPatient)
 }
 
 /// Keys already queued, bounded (oldest forgotten first).
@@ -116,6 +150,14 @@ impl Seen {
     /// True when the key was already recorded.
     pub fn contains(&self, key: &str) -> bool {
         self.inner.lock().map(|g| g.0.contains(key)).unwrap_or(false)
+    }
+    /// Forget a key (its work failed: a redelivery is worked again).
+    pub fn remove(&self, key: &str) {
+        if let Ok(mut g) = self.inner.lock()
+            && g.0.remove(key)
+        {
+            g.1.retain(|k| k != key);
+        }
     }
     /// Record a key.
     pub fn insert(&self, key: String) {
@@ -187,4 +229,38 @@ pub fn transaction(result: &Value, input_digest: &[u8; 32], rules_sha: &str, can
         }));
     }
     serde_json::json!({ "resourceType": "Bundle", "type": "transaction", "entry": entries })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use serde_json::json;
+
+    fn known() -> Vec<String> {
+        vec!["http://loinc.org|1994-3".to_owned()]
+    }
+
+    #[test]
+    fn only_observations_with_a_known_code_and_a_patient_are_relevant() {
+        let ica = json!({ "resourceType": "Observation", "code": { "coding": [{ "system": "http://loinc.org", "code": "1994-3" }] }, "subject": { "reference": "Patient/p-1" } });
+        assert_eq!(relevant_patient(&ica, &known()), Ok("p-1".to_owned()));
+        let other = json!({ "resourceType": "Observation", "code": { "coding": [{ "system": "http://loinc.org", "code": "718-7" }] }, "subject": { "reference": "Patient/p-1" } });
+        assert_eq!(relevant_patient(&other, &known()), Err(NotRelevant::OtherCode));
+        let report = json!({ "resourceType": "DiagnosticReport" });
+        assert_eq!(relevant_patient(&report, &known()), Err(NotRelevant::NotAnObservation("DiagnosticReport".into())));
+        let group = json!({ "resourceType": "Observation", "code": { "coding": [{ "system": "http://loinc.org", "code": "1994-3" }] }, "subject": { "reference": "Group/g-1" } });
+        assert_eq!(relevant_patient(&group, &known()), Err(NotRelevant::NoPatient));
+    }
+
+    #[test]
+    fn a_forgotten_key_is_no_longer_seen() {
+        let seen = Seen::new(2);
+        seen.insert("s#1".into());
+        seen.insert("s#2".into());
+        seen.remove("s#1");
+        assert!(!seen.contains("s#1") && seen.contains("s#2"));
+        seen.insert("s#3".into());
+        seen.insert("s#4".into());
+        assert!(!seen.contains("s#2"), "the oldest is forgotten past the capacity");
+    }
 }

@@ -18,6 +18,8 @@ use serde::{Deserialize, Serialize};
 pub const ASSERTION_LIFETIME: Duration = Duration::from_secs(300);
 /// A cached token is renewed this long before its stated expiry (clock skew and flight time).
 pub const EXPIRY_MARGIN: Duration = Duration::from_secs(30);
+/// Marks a token error that is a timeout (the upstream call is then a 504, not a 502).
+pub const TIMED_OUT: &str = "(timed out)";
 /// The OAuth client assertion type for a JWT (RFC 7523).
 pub const ASSERTION_TYPE: &str = "urn:ietf:params:oauth:client-assertion-type:jwt-bearer";
 
@@ -149,10 +151,21 @@ impl TokenSource {
     }
 
     /// The current access token, fetched when none is cached or it is about to expire.
-    pub async fn token(&self, http: &reqwest::Client, timeout: Duration) -> Result<String, String> {
+    /// The token request gets `call_timeout`, never past `deadline` (counted after
+    /// waiting for a parallel call's fetch).
+    pub async fn token(
+        &self,
+        http: &reqwest::Client,
+        call_timeout: Duration,
+        deadline: Instant,
+    ) -> Result<String, String> {
         let mut cache = self.cache.lock().await;
         if let Some(t) = cache.as_ref().filter(|t| Instant::now() < t.renew_at) {
             return Ok(t.value.clone());
+        }
+        let timeout = call_timeout.min(deadline.saturating_duration_since(Instant::now()));
+        if timeout.is_zero() {
+            return Err(format!("the overall deadline passed before a token was obtained {TIMED_OUT}"));
         }
         let fetched = self.fetch(http, timeout).await?;
         let value = fetched.access_token.clone();
@@ -193,7 +206,7 @@ impl TokenSource {
             .await
             .map_err(|e| {
                 if e.is_timeout() {
-                    format!("the token endpoint did not answer within {} ms", timeout.as_millis())
+                    format!("the token endpoint did not answer within {} ms {TIMED_OUT}", timeout.as_millis())
                 } else {
                     format!("the token endpoint could not be reached: {e}")
                 }

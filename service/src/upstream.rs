@@ -117,11 +117,11 @@ impl FhirClient {
     }
 
     /// The bearer token to send, if any.
-    async fn token(&self, timeout: Duration) -> Result<Option<String>, String> {
+    async fn token(&self, deadline: Instant) -> Result<Option<String>, String> {
         match &self.settings.auth {
             Auth::None => Ok(None),
             Auth::Static(t) => Ok(Some(t.clone())),
-            Auth::Smart(source) => source.token(&self.http, timeout).await.map(Some),
+            Auth::Smart(source) => source.token(&self.http, self.settings.call_timeout, deadline).await.map(Some),
         }
     }
 
@@ -135,8 +135,12 @@ impl FhirClient {
             if left.is_zero() {
                 return Err(fail("the overall deadline passed".into(), true));
             }
+            let token = self.token(deadline).await.map_err(|how| {
+                let timed_out = how.contains(crate::smart::TIMED_OUT);
+                fail(how, timed_out)
+            })?;
+            let left = deadline.saturating_duration_since(Instant::now());
             let timeout = self.settings.call_timeout.min(left);
-            let token = self.token(timeout).await.map_err(|how| fail(how, false))?;
             let mut req = self.http.get(url).header(reqwest::header::ACCEPT, "application/fhir+json").timeout(timeout);
             if let Some(t) = &token {
                 req = req.bearer_auth(t);
@@ -248,9 +252,12 @@ impl FhirClient {
         let mut attempt = 0;
         let mut refreshed = false;
         loop {
+            let token = self.token(deadline).await.map_err(|how| {
+                let timed_out = how.contains(crate::smart::TIMED_OUT);
+                fail(how, timed_out)
+            })?;
             let left = deadline.saturating_duration_since(Instant::now());
             let timeout = self.settings.call_timeout.min(left);
-            let token = self.token(timeout).await.map_err(|how| fail(how, false))?;
             let mut req = self
                 .http
                 .post(self.settings.base_url.trim_end_matches('/'))

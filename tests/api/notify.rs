@@ -248,3 +248,83 @@ async fn events_need_an_upstream_and_notifications_must_be_history_bundles() {
     let oo: Value = r.json().await.unwrap();
     assert_eq!(oo["issue"][0]["expression"][0], "Bundle.type");
 }
+
+#[tokio::test]
+async fn an_event_about_an_observation_the_rules_do_not_read_gathers_nothing() {
+    let server = MockServer::start().await;
+    let hemoglobin = json!({
+        "resourceType": "Observation", "id": "hb-77", "status": "final",
+        "code": { "coding": [{ "system": "http://loinc.org", "code": "718-7" }] },
+        "subject": { "reference": "Patient/lch-4417" },
+        "valueQuantity": { "value": 118, "unit": "g/L", "system": "http://unitsofmeasure.org", "code": "g/L" },
+    });
+    Mock::given(method("GET"))
+        .and(path("/fhir/Observation/hb-77"))
+        .respond_with(ResponseTemplate::new(200).set_body_json(&hemoglobin))
+        .expect(1)
+        .named("the focus is read")
+        .mount(&server)
+        .await;
+    Mock::given(method("GET"))
+        .and(path_regex(r"^/fhir/(Patient/.*|Observation|MedicationRequest|Condition)$"))
+        .respond_with(ResponseTemplate::new(500))
+        .expect(0)
+        .named("no gather")
+        .mount(&server)
+        .await;
+    let app = spawn(Some(&server), 4).await;
+    let n = notification("event-notification", &[("3", "Observation/hb-77")]);
+    assert_eq!(app.notify(&n).await.status(), 202);
+    // Give the worker time to read the focus (wiremock verifies the counts on drop).
+    for _ in 0..40 {
+        let seen = server.received_requests().await.unwrap_or_default().len();
+        if seen >= 1 {
+            break;
+        }
+        tokio::time::sleep(Duration::from_millis(50)).await;
+    }
+    tokio::time::sleep(Duration::from_millis(200)).await;
+}
+
+#[tokio::test]
+async fn an_event_whose_gather_failed_is_worked_again_on_redelivery() {
+    let server = ehr().await;
+    // The first Patient read fails; the EHR is fine afterwards.
+    Mock::given(method("GET"))
+        .and(path("/fhir/Patient/lch-4417"))
+        .respond_with(ResponseTemplate::new(500))
+        .up_to_n_times(1)
+        .with_priority(1)
+        .mount(&server)
+        .await;
+    Mock::given(method("POST"))
+        .and(path("/fhir"))
+        .respond_with(
+            ResponseTemplate::new(200)
+                .set_body_json(json!({ "resourceType": "Bundle", "type": "transaction-response" })),
+        )
+        .mount(&server)
+        .await;
+    let app = spawn(Some(&server), 4).await;
+    let n = notification("event-notification", &[("41", "Observation/ica-9001")]);
+    assert_eq!(app.notify(&n).await.status(), 202);
+    // The sender redelivers until the result is written.
+    let mut posts = Vec::new();
+    for _ in 0..60 {
+        tokio::time::sleep(Duration::from_millis(100)).await;
+        posts = transactions(&server, 0).await;
+        if !posts.is_empty() {
+            break;
+        }
+        assert_eq!(app.notify(&n).await.status(), 202);
+    }
+    assert_eq!(posts.len(), 1, "the failed event was never worked again");
+    let reads = server
+        .received_requests()
+        .await
+        .unwrap_or_default()
+        .iter()
+        .filter(|r| r.url.path() == "/fhir/Patient/lch-4417")
+        .count();
+    assert!(reads >= 2, "{reads} Patient reads");
+}

@@ -323,3 +323,32 @@ fn debug_output_never_shows_the_key_or_a_token() {
     let shown = format!("{client:?}");
     assert!(!shown.contains("larkspur-secret-token"), "{shown}");
 }
+
+#[tokio::test]
+async fn a_token_endpoint_slower_than_the_call_timeout_is_a_504_within_the_deadline() {
+    // Arrange: the token endpoint answers after 2 s; calls time out at 300 ms, the gather at 1 s.
+    let server = MockServer::start().await;
+    token_endpoint()
+        .respond_with(token_response("smart-tok-1", 300).set_delay(Duration::from_secs(2)))
+        .named("slow token endpoint")
+        .mount(&server)
+        .await;
+    let app = spawn_app_with_upstream_args(UpstreamArgs {
+        upstream_timeout_ms: 300,
+        upstream_deadline_ms: 1000,
+        ..smart_args(&server, "ES384")
+    })
+    .await;
+
+    // Act
+    let (status, body) = post_patient(&app, PATIENT_ID).await;
+
+    // Assert: a timeout, named; no FHIR call was made without a token.
+    assert_eq!(status, 504, "{body}");
+    assert_r4_valid(&body);
+    let text = diagnostics(&body);
+    assert!(text.contains("Patient read") && text.contains("token"), "{text}");
+    let fhir_calls =
+        server.received_requests().await.expect("recording").iter().filter(|r| r.method.as_str() == "GET").count();
+    assert_eq!(fhir_calls, 0);
+}
