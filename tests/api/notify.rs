@@ -147,10 +147,28 @@ async fn an_event_delivered_three_times_is_worked_and_written_back_once() {
     let server = ehr().await;
     Mock::given(method("POST"))
         .and(path("/fhir"))
+        .and(wiremock::matchers::header("content-type", "application/fhir+json"))
+        .and(|r: &wiremock::Request| {
+            // A transaction whose every entry is a conditional create.
+            serde_json::from_slice::<Value>(&r.body).ok().is_some_and(|b| {
+                b["type"] == "transaction"
+                    && b["entry"].as_array().is_some_and(|es| {
+                        !es.is_empty()
+                            && es.iter().all(|e| {
+                                e["request"]["method"] == "POST"
+                                    && e["request"]["ifNoneExist"]
+                                        .as_str()
+                                        .is_some_and(|c| c.starts_with("identifier="))
+                            })
+                    })
+            })
+        })
         .respond_with(
             ResponseTemplate::new(200)
                 .set_body_json(json!({ "resourceType": "Bundle", "type": "transaction-response" })),
         )
+        .expect(1)
+        .named("one conditional-create transaction")
         .mount(&server)
         .await;
     let app = spawn(Some(&server), 4).await;
