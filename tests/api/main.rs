@@ -24,3 +24,6 @@ mod notify;
 
 /// SMART Backend Services authorization.
 mod smart;
+
+// The container contract: the binary run as deploy/Dockerfile runs it.
+mod container;
