@@ -36,6 +36,7 @@ pub struct AppState {
     write_back: bool,
     body_limit: usize,
     ready: AtomicBool,
+    metrics: Arc<crate::metrics::Metrics>,
     capability: Value,
     operation: Value,
 }
@@ -57,7 +58,8 @@ impl Application {
             serde_json::from_str(CAPABILITY).map_err(|e| format!("CapabilityStatement: {e}"))?;
         capability["software"]["version"] = Value::String(VERSION.to_owned());
         let operation: Value = serde_json::from_str(OPERATION).map_err(|e| format!("OperationDefinition: {e}"))?;
-        let upstream = settings.upstream.client()?;
+        let metrics = Arc::new(crate::metrics::Metrics::default());
+        let upstream = settings.upstream.client()?.map(|c| c.with_metrics(metrics.clone()));
         let (tx, rx) = tokio::sync::mpsc::channel(settings.upstream.queue_capacity.max(1));
         let queue = upstream.is_some().then_some(tx);
         let state = Arc::new(AppState {
@@ -68,6 +70,7 @@ impl Application {
             write_back: settings.upstream.write_back,
             body_limit: settings.body_limit,
             ready: AtomicBool::new(false),
+            metrics,
             capability,
             operation,
         });
@@ -92,6 +95,7 @@ impl Application {
                 .route("/fhir/OperationDefinition/assess", web::get().to(operation_definition))
                 .route("/livez", web::get().to(livez))
                 .route("/readyz", web::get().to(readyz))
+                .route("/metrics", web::get().to(metrics_text))
                 .default_service(web::to(not_found))
         })
         .listen(listener)
@@ -170,6 +174,7 @@ async fn assess(req: HttpRequest, payload: web::Payload, state: web::Data<AppSta
     };
     match state.engine.assess(&body, now_unix(), false) {
         Ok(outcome) => {
+            state.metrics.assessment(outcome.status, outcome.severity.unwrap_or("none"));
             tracing::info!(
                 guidance_status = outcome.status,
                 severity = outcome.severity.unwrap_or("none"),
@@ -228,6 +233,7 @@ async fn assess_patient(path: web::Path<String>, state: web::Data<AppState>) -> 
     };
     match state.engine.assess_document(&gathered.bundle, now, false, &gathered.failed) {
         Ok(outcome) => {
+            state.metrics.assessment(outcome.status, outcome.severity.unwrap_or("none"));
             tracing::info!(
                 guidance_status = outcome.status,
                 failed_searches = gathered.failed.len(),
@@ -387,6 +393,16 @@ async fn operation_definition(state: web::Data<AppState>) -> HttpResponse {
     fhir_response(StatusCode::OK, &state.operation)
 }
 
+async fn metrics_text(state: web::Data<AppState>) -> HttpResponse {
+    let rules = &state.engine.rules;
+    let text = state.metrics.render(&crate::metrics::Snapshot {
+        version: VERSION,
+        rules: (&rules.rules.ruleset.name, &rules.rules.ruleset.version, &rules.sha256),
+        queue_depth: state.queue.as_ref().map(|q| q.max_capacity() - q.capacity()),
+    });
+    HttpResponse::Ok().content_type("text/plain; version=0.0.4; charset=utf-8").body(text)
+}
+
 async fn livez() -> HttpResponse {
     HttpResponse::Ok().content_type("application/json").body(r#"{"status":"live"}"#)
 }
@@ -442,7 +458,11 @@ async fn access_log(
     let id = request_id(&req);
     let method = req.method().to_string();
     let route = req.match_pattern().unwrap_or_else(|| "unmatched".to_owned());
+    let metrics = req.app_data::<web::Data<AppState>>().map(|s| s.metrics.clone());
     let mut res = next.call(req).await?;
+    if let Some(m) = metrics {
+        m.request(&route, res.status().as_u16(), start.elapsed());
+    }
     if let Ok(v) = HeaderValue::from_str(&id) {
         res.headers_mut().insert(header::HeaderName::from_static("x-request-id"), v);
     }

@@ -95,6 +95,7 @@ pub struct Gathered {
 pub struct FhirClient {
     http: reqwest::Client,
     settings: UpstreamSettings,
+    metrics: Option<std::sync::Arc<crate::metrics::Metrics>>,
 }
 
 fn jitter(attempt: u32) -> Duration {
@@ -113,7 +114,14 @@ fn retry_after(resp: &reqwest::Response) -> Option<Duration> {
 impl FhirClient {
     /// A client over an injected `reqwest::Client`.
     pub fn new(http: reqwest::Client, settings: UpstreamSettings) -> Self {
-        Self { http, settings }
+        Self { http, settings, metrics: None }
+    }
+
+    /// Record every call's latency and failure in `metrics`.
+    #[must_use]
+    pub fn with_metrics(mut self, metrics: std::sync::Arc<crate::metrics::Metrics>) -> Self {
+        self.metrics = Some(metrics);
+        self
     }
 
     /// The bearer token to send, if any.
@@ -125,8 +133,17 @@ impl FhirClient {
         }
     }
 
-    /// GET one URL as FHIR JSON, with retries, within the deadline.
+    /// GET one URL as FHIR JSON, with retries, within the deadline; recorded in the metrics.
     async fn get(&self, url: &str, what: &str, deadline: Instant) -> Result<Value, FailedCall> {
+        let start = Instant::now();
+        let result = self.get_with_retries(url, what, deadline).await;
+        if let Some(m) = &self.metrics {
+            m.upstream_call(what, start.elapsed(), result.is_err());
+        }
+        result
+    }
+
+    async fn get_with_retries(&self, url: &str, what: &str, deadline: Instant) -> Result<Value, FailedCall> {
         let fail = |how: String, timed_out: bool| FailedCall { what: what.to_owned(), how, timed_out };
         let mut attempt = 0;
         let mut refreshed = false;

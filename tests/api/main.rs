@@ -27,3 +27,6 @@ mod smart;
 
 // The container contract: the binary run as deploy/Dockerfile runs it.
 mod container;
+
+// Telemetry of the binary: request log lines, no patient data in the log, metrics.
+mod telemetry;
