@@ -79,7 +79,8 @@ impl Application {
             tokio::spawn(async move {
                 let mut rx = rx;
                 while let Some(job) = rx.recv().await {
-                    work(&worker_state, job).await;
+                    // Each event starts its own trace; its upstream calls carry it.
+                    crate::trace::scope(crate::trace::TraceContext::start(), work(&worker_state, job)).await;
                 }
             });
         }
@@ -459,7 +460,14 @@ async fn access_log(
     let method = req.method().to_string();
     let route = req.match_pattern().unwrap_or_else(|| "unmatched".to_owned());
     let metrics = req.app_data::<web::Data<AppState>>().map(|s| s.metrics.clone());
-    let mut res = next.call(req).await?;
+    let trace = req
+        .headers()
+        .get("traceparent")
+        .and_then(|v| v.to_str().ok())
+        .and_then(crate::trace::TraceContext::parse)
+        .unwrap_or_else(crate::trace::TraceContext::start);
+    let trace_id = trace.trace_id.clone();
+    let mut res = crate::trace::scope(trace, next.call(req)).await?;
     if let Some(m) = metrics {
         m.request(&route, res.status().as_u16(), start.elapsed());
     }
@@ -472,6 +480,7 @@ async fn access_log(
         status = res.status().as_u16(),
         latency_ms = start.elapsed().as_secs_f64() * 1000.0,
         request_id = %id,
+        trace_id = %trace_id,
         "request"
     );
     Ok(res)

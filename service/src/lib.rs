@@ -17,4 +17,5 @@ pub mod notify;
 pub mod rules;
 pub mod smart;
 pub mod telemetry;
+pub mod trace;
 pub mod upstream;

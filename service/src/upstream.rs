@@ -159,6 +159,9 @@ impl FhirClient {
             let left = deadline.saturating_duration_since(Instant::now());
             let timeout = self.settings.call_timeout.min(left);
             let mut req = self.http.get(url).header(reqwest::header::ACCEPT, "application/fhir+json").timeout(timeout);
+            if let Some(t) = crate::trace::current() {
+                req = req.header("traceparent", t.child_header());
+            }
             if let Some(t) = &token {
                 req = req.bearer_auth(t);
             }
@@ -282,6 +285,9 @@ impl FhirClient {
                 .header(reqwest::header::ACCEPT, "application/fhir+json")
                 .timeout(timeout)
                 .body(bundle.to_string());
+            if let Some(t) = crate::trace::current() {
+                req = req.header("traceparent", t.child_header());
+            }
             if let Some(t) = &token {
                 req = req.bearer_auth(t);
             }

@@ -885,3 +885,53 @@ fn debug_of_the_client_does_not_show_the_token() {
     let shown = format!("{client:?}");
     assert!(!shown.contains(TOKEN), "{shown}");
 }
+
+#[tokio::test]
+async fn an_incoming_traceparent_is_carried_to_every_upstream_call_with_a_new_parent_id() {
+    // Arrange: the W3C Trace Context example header.
+    const TRACE_ID: &str = "4bf92f3577b34da6a3ce929d0e0e4736";
+    const PARENT: &str = "00f067aa0ba902b7";
+    let carries_the_trace = |r: &Request| {
+        r.headers.get("traceparent").and_then(|v| v.to_str().ok()).is_some_and(|v| {
+            let parts: Vec<&str> = v.split('-').collect();
+            parts.len() == 4 && parts[0] == "00" && parts[1] == TRACE_ID && parts[2] != PARENT && parts[3] == "01"
+        })
+    };
+    let server = MockServer::start().await;
+    Mock::given(method("GET"))
+        .and(path(format!("/Patient/{PATIENT_ID}")))
+        .and(carries_the_trace)
+        .respond_with(fhir(200, &patient()))
+        .expect(1)
+        .named("Patient read with the trace")
+        .mount(&server)
+        .await;
+    observation_search()
+        .and(carries_the_trace)
+        .respond_with(fhir(200, &searchset(&server.uri(), &[ionized_calcium("ica-t1", 0.9)], None)))
+        .expect(1)
+        .named("Observation search with the trace")
+        .mount(&server)
+        .await;
+    Mock::given(any())
+        .and(carries_the_trace)
+        .respond_with(fhir(200, &searchset(&server.uri(), &[], None)))
+        .with_priority(FALLBACK)
+        .expect(5)
+        .named("the other five searches with the trace")
+        .mount(&server)
+        .await;
+    let app = spawn_app_with_upstream_args(args(&server)).await;
+
+    // Act
+    let response = app
+        .client
+        .post(format!("{}/fhir/Patient/{PATIENT_ID}/$assess", app.address))
+        .header("traceparent", format!("00-{TRACE_ID}-{PARENT}-01"))
+        .send()
+        .await
+        .expect("the request is sent");
+
+    // Assert (the mocks' counts are verified when the server drops)
+    assert_eq!(response.status().as_u16(), 200);
+}
