@@ -85,7 +85,9 @@ fn serve(args: &ServeArgs) -> ExitCode {
     let result = system.block_on(async {
         let app = crate::http::Application::build(args, engine)?;
         tracing::info!(port = app.port(), rules = %rules_label, version = crate::engine::VERSION, "listening");
-        app.run_until_stopped().await.map_err(|e| e.to_string())
+        app.run_until_signalled(std::time::Duration::from_millis(args.limits.shutdown_delay_ms))
+            .await
+            .map_err(|e| e.to_string())
     });
     match result {
         Ok(()) => ExitCode::SUCCESS,

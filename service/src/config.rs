@@ -64,6 +64,32 @@ pub struct ServeArgs {
     /// Upstream FHIR server for patient-context assessment.
     #[command(flatten)]
     pub upstream: UpstreamArgs,
+    /// Limits and lifecycle.
+    #[command(flatten)]
+    pub limits: LimitArgs,
+}
+
+/// Limits and lifecycle (operational settings).
+#[derive(Debug, Clone, Args)]
+pub struct LimitArgs {
+    /// FHIR requests served at once; beyond it the answer is 503 with Retry-After.
+    #[arg(long, env = "CALCIUM_CDS_MAX_IN_FLIGHT", default_value_t = 64)]
+    pub max_in_flight: usize,
+    /// Time a FHIR request may take, milliseconds (above the upstream deadline); then 503.
+    #[arg(long, env = "CALCIUM_CDS_REQUEST_TIMEOUT_MS", default_value_t = 15000)]
+    pub request_timeout_ms: u64,
+    /// On SIGTERM, time between readiness going false and the listener closing, milliseconds.
+    #[arg(long, env = "CALCIUM_CDS_SHUTDOWN_DELAY_MS", default_value_t = 5000)]
+    pub shutdown_delay_ms: u64,
+    /// Time in-flight requests get to finish after the listener closes, seconds.
+    #[arg(long, env = "CALCIUM_CDS_SHUTDOWN_TIMEOUT_S", default_value_t = 25)]
+    pub shutdown_timeout_s: u64,
+}
+
+impl Default for LimitArgs {
+    fn default() -> Self {
+        Self { max_in_flight: 64, request_timeout_ms: 15000, shutdown_delay_ms: 5000, shutdown_timeout_s: 25 }
+    }
 }
 
 /// A secret that never prints.

@@ -37,6 +37,8 @@ pub struct AppState {
     body_limit: usize,
     ready: AtomicBool,
     metrics: Arc<crate::metrics::Metrics>,
+    in_flight: Arc<tokio::sync::Semaphore>,
+    request_timeout: std::time::Duration,
     capability: Value,
     operation: Value,
 }
@@ -71,6 +73,8 @@ impl Application {
             body_limit: settings.body_limit,
             ready: AtomicBool::new(false),
             metrics,
+            in_flight: Arc::new(tokio::sync::Semaphore::new(settings.limits.max_in_flight.max(1))),
+            request_timeout: std::time::Duration::from_millis(settings.limits.request_timeout_ms.max(1)),
             capability,
             operation,
         });
@@ -88,6 +92,7 @@ impl Application {
         let server = HttpServer::new(move || {
             App::new()
                 .app_data(data.clone())
+                .wrap(actix_web::middleware::from_fn(limit))
                 .wrap(actix_web::middleware::from_fn(access_log))
                 .route("/fhir/$assess", web::post().to(assess))
                 .route("/fhir/Patient/{id}/$assess", web::post().to(assess_patient))
@@ -99,6 +104,8 @@ impl Application {
                 .route("/metrics", web::get().to(metrics_text))
                 .default_service(web::to(not_found))
         })
+        .shutdown_timeout(settings.limits.shutdown_timeout_s)
+        .disable_signals()
         .listen(listener)
         .map_err(|e| e.to_string())?
         .run();
@@ -111,11 +118,34 @@ impl Application {
         self.port
     }
 
-    /// Serve until stopped (SIGINT/SIGTERM stop it gracefully).
+    /// Serve until stopped (no signal handling: tests stop it by dropping the runtime).
     pub async fn run_until_stopped(self) -> std::io::Result<()> {
         let state = self.state;
         let result = self.server.await;
         state.ready.store(false, Ordering::SeqCst);
+        result
+    }
+
+    /// Serve until SIGTERM or SIGINT, then shut down gracefully: readiness goes
+    /// false first, the listener closes after `drain` (so that load balancers
+    /// stop sending), and in-flight requests finish within the shutdown timeout.
+    pub async fn run_until_signalled(self, drain: std::time::Duration) -> std::io::Result<()> {
+        let handle = self.server.handle();
+        let state = self.state.clone();
+        let mut term = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::terminate())?;
+        let mut int = tokio::signal::unix::signal(tokio::signal::unix::SignalKind::interrupt())?;
+        actix_web::rt::spawn(async move {
+            tokio::select! {
+                _ = term.recv() => {}
+                _ = int.recv() => {}
+            }
+            state.ready.store(false, Ordering::SeqCst);
+            tracing::info!(drain_ms = drain.as_millis() as u64, "shutdown: readiness false, draining");
+            tokio::time::sleep(drain).await;
+            handle.stop(true).await;
+        });
+        let result = self.server.await;
+        tracing::info!("shutdown complete");
         result
     }
 }
@@ -161,7 +191,10 @@ async fn assess(req: HttpRequest, payload: web::Payload, state: web::Data<AppSta
     if declared.is_some_and(|n| n > state.body_limit) {
         return too_large();
     }
-    let body = match payload.to_bytes_limited(state.body_limit).await {
+    let Ok(read) = tokio::time::timeout(state.request_timeout, payload.to_bytes_limited(state.body_limit)).await else {
+        return slow_body(&state);
+    };
+    let body = match read {
         Err(_) => return too_large(),
         Ok(Err(_)) => {
             return error_response(&RequestError::single(
@@ -219,7 +252,10 @@ async fn assess_patient(path: web::Path<String>, state: web::Data<AppState>) -> 
     let since =
         crate::clinical::time::CivilDate::from_days_since_epoch(now.div_euclid(86_400) - since_days).to_string();
     let codes = state.engine.observation_code_tokens();
-    let gathered = match client.gather(&id, &codes, &since).await {
+    let Ok(gathered) = tokio::time::timeout(state.request_timeout, client.gather(&id, &codes, &since)).await else {
+        return timed_out(&state);
+    };
+    let gathered = match gathered {
         Ok(g) => g,
         Err(f) => {
             tracing::info!(call = %f.what, timed_out = f.timed_out, "upstream call failed");
@@ -260,7 +296,10 @@ async fn notifications(req: HttpRequest, payload: web::Payload, state: web::Data
             "Content-Type must be application/fhir+json.",
         ));
     }
-    let Ok(Ok(body)) = payload.to_bytes_limited(state.body_limit).await else {
+    let Ok(read) = tokio::time::timeout(state.request_timeout, payload.to_bytes_limited(state.body_limit)).await else {
+        return slow_body(&state);
+    };
+    let Ok(Ok(body)) = read else {
         return error_response(&RequestError::single(
             413,
             IssueCode::TooCostly,
@@ -448,6 +487,57 @@ fn request_id(req: &ServiceRequest) -> String {
         Some(v) => v.to_owned(),
         None => format!("req-{:x}-{}", std::process::id(), NEXT_ID.fetch_add(1, Ordering::Relaxed)),
     }
+}
+
+/// Routes that stay outside the in-flight limit and the request timeout.
+fn is_probe_or_metrics(path: &str) -> bool {
+    matches!(path, "/livez" | "/readyz" | "/metrics")
+}
+
+/// The in-flight limit (503 with Retry-After when saturated, never an unbounded
+/// queue) for every route but the probes and metrics. The request timeout is
+/// applied where a request waits: reading its body and the upstream gather.
+async fn limit(
+    req: ServiceRequest,
+    next: Next<impl MessageBody + 'static>,
+) -> Result<ServiceResponse<actix_web::body::BoxBody>, actix_web::Error> {
+    let Some(state) = req.app_data::<web::Data<AppState>>().cloned() else {
+        return next.call(req).await.map(ServiceResponse::map_into_boxed_body);
+    };
+    if is_probe_or_metrics(req.path()) {
+        return next.call(req).await.map(ServiceResponse::map_into_boxed_body);
+    }
+    let Ok(_permit) = state.in_flight.clone().try_acquire_owned() else {
+        let mut res = error_response(&RequestError::single(
+            503,
+            IssueCode::Throttled,
+            "",
+            "The service is at its limit of requests in flight; retry shortly.",
+        ));
+        res.headers_mut().insert(header::RETRY_AFTER, HeaderValue::from_static("1"));
+        return Ok(req.into_response(res));
+    };
+    next.call(req).await.map(ServiceResponse::map_into_boxed_body)
+}
+
+/// A body that did not arrive within the request timeout.
+fn slow_body(state: &AppState) -> HttpResponse {
+    error_response(&RequestError::single(
+        408,
+        IssueCode::Timeout,
+        "",
+        format!("The request body did not arrive within {} ms.", state.request_timeout.as_millis()),
+    ))
+}
+
+/// A request that ran past the request timeout.
+fn timed_out(state: &AppState) -> HttpResponse {
+    error_response(&RequestError::single(
+        503,
+        IssueCode::Timeout,
+        "",
+        format!("The request took longer than {} ms and was stopped.", state.request_timeout.as_millis()),
+    ))
 }
 
 /// One log line per request: method, route template, status, latency, id.

@@ -139,6 +139,18 @@ async fn the_binary_run_as_the_image_runs_it_answers_the_probes_and_stops_on_sig
     let pid = child.0.id().to_string();
     let sent = Command::new("kill").args(["-TERM", &pid]).status().expect("kill runs");
     assert!(sent.success());
+    // Readiness goes false first, while the listener still answers (the drain delay).
+    let mut not_ready = None;
+    let drain = Instant::now();
+    while drain.elapsed() < Duration::from_secs(3) {
+        if get_status(&client, &format!("{base}/readyz")).await == Some(503) {
+            not_ready = Some(drain.elapsed());
+            break;
+        }
+        tokio::time::sleep(Duration::from_millis(50)).await;
+    }
+    assert!(not_ready.is_some(), "readiness went false after SIGTERM while still listening");
+    assert_eq!(get_status(&client, &format!("{base}/livez")).await, Some(200), "alive while draining");
     let stop = Instant::now();
     let mut exit = None;
     while stop.elapsed() < Duration::from_secs(40) {

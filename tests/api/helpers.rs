@@ -50,6 +50,7 @@ pub async fn spawn_app_with_body_limit(body_limit: usize) -> TestApp {
         body_limit,
         rules: RuleArgs { rules: None },
         upstream: calcium_cds::config::UpstreamArgs::default(),
+        limits: calcium_cds::config::LimitArgs::default(),
     };
     let app = Application::build(&settings, engine).expect("the application builds");
     let address = format!("http://127.0.0.1:{}", app.port());
@@ -74,6 +75,14 @@ pub async fn spawn_app_with_upstream(base_url: &str, token: Option<&str>) -> Tes
 
 /// Start the service with chosen upstream settings (`ServeArgs.upstream`).
 pub async fn spawn_app_with_upstream_args(upstream: calcium_cds::config::UpstreamArgs) -> TestApp {
+    spawn_app_with(upstream, calcium_cds::config::LimitArgs::default()).await
+}
+
+/// Start the service with chosen upstream settings and limits.
+pub async fn spawn_app_with(
+    upstream: calcium_cds::config::UpstreamArgs,
+    limits: calcium_cds::config::LimitArgs,
+) -> TestApp {
     let rules = load_rules(None).expect("the embedded rules load");
     let engine = Engine::new(rules).expect("the engine builds");
     let settings = ServeArgs {
@@ -81,6 +90,7 @@ pub async fn spawn_app_with_upstream_args(upstream: calcium_cds::config::Upstrea
         body_limit: DEFAULT_BODY_LIMIT,
         rules: RuleArgs { rules: None },
         upstream,
+        limits,
     };
     let app = Application::build(&settings, engine).expect("the application builds");
     let address = format!("http://127.0.0.1:{}", app.port());

@@ -30,3 +30,6 @@ mod container;
 
 // Telemetry of the binary: request log lines, no patient data in the log, metrics.
 mod telemetry;
+
+// Limits: in-flight cap and request timeout.
+mod limits;

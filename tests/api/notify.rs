@@ -24,6 +24,7 @@ async fn spawn(upstream: Option<&MockServer>, queue_capacity: usize) -> App {
         body_limit: 1024 * 1024,
         rules: RuleArgs { rules: None },
         upstream: up,
+        limits: calcium_cds::config::LimitArgs::default(),
     };
     let app = calcium_cds::http::Application::build(&settings, engine).unwrap();
     let address = format!("http://127.0.0.1:{}", app.port());

@@ -56,6 +56,10 @@ pub enum IssueCode {
     Exception,
     /// not-found
     NotFound,
+    /// throttled (too many requests at once)
+    Throttled,
+    /// timeout
+    Timeout,
 }
 
 impl IssueCode {
@@ -74,6 +78,8 @@ impl IssueCode {
             Self::Informational => "informational",
             Self::Exception => "exception",
             Self::NotFound => "not-found",
+            Self::Throttled => "throttled",
+            Self::Timeout => "timeout",
         }
     }
 }
