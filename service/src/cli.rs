@@ -3,7 +3,7 @@
 use std::io::Read;
 use std::process::ExitCode;
 
-use crate::config::{AssessArgs, Cli, Command, ServeArgs, load_rules};
+use crate::config::{ArgSources, AssessArgs, Cli, Command, ConfigCommand, ServeArgs, load_rules};
 use crate::engine::Engine;
 use crate::fhir::datetime;
 
@@ -13,10 +13,42 @@ pub const EXIT_REQUEST_ERROR: u8 = 2;
 pub const EXIT_CONFIG_ERROR: u8 = 1;
 
 /// Run the parsed command line.
-pub fn run(cli: Cli) -> ExitCode {
+pub fn run(cli: Cli, sources: &ArgSources) -> ExitCode {
     match cli.command {
         Command::Assess(args) => assess(&args),
         Command::Serve(args) => serve(&args),
+        Command::Config(ConfigCommand::Check(args)) => config_check(&args, sources),
+    }
+}
+
+/// Validate everything `serve` would use, without listening; print the effective
+/// configuration with its sources, secrets masked. Exit 0 when it would start.
+fn config_check(args: &ServeArgs, sources: &ArgSources) -> ExitCode {
+    let mut problems = Vec::new();
+    let rules = match engine(args.rules.rules.as_ref()) {
+        Ok(e) => e.rules.label(),
+        Err(e) => {
+            problems.push(format!("rules: {e}"));
+            String::new()
+        }
+    };
+    if let Err(e) = args.upstream.client() {
+        problems.push(format!("upstream: {e}"));
+    }
+    problems.extend(args.cross_checks());
+    println!("# calcium-cds {} effective configuration", crate::engine::VERSION);
+    println!("{}", sources.render());
+    if !rules.is_empty() {
+        println!("# rule set: {rules}");
+    }
+    if problems.is_empty() {
+        println!("# ok: the service would start with this configuration");
+        ExitCode::SUCCESS
+    } else {
+        for p in &problems {
+            eprintln!("calcium-cds: {p}");
+        }
+        ExitCode::from(EXIT_CONFIG_ERROR)
     }
 }
 
@@ -72,6 +104,13 @@ fn assess(args: &AssessArgs) -> ExitCode {
 
 fn serve(args: &ServeArgs) -> ExitCode {
     crate::telemetry::init(true);
+    let problems = args.cross_checks();
+    if !problems.is_empty() {
+        for p in &problems {
+            eprintln!("calcium-cds: {p}");
+        }
+        return ExitCode::from(EXIT_CONFIG_ERROR);
+    }
     let engine = match engine(args.rules.rules.as_ref()) {
         Ok(e) => e,
         Err(e) => {

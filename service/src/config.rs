@@ -26,6 +26,16 @@ pub enum Command {
     Assess(AssessArgs),
     /// Run the HTTP service.
     Serve(Box<ServeArgs>),
+    /// Configuration tools.
+    #[command(subcommand)]
+    Config(ConfigCommand),
+}
+
+/// `config` subcommands.
+#[derive(Debug, Subcommand)]
+pub enum ConfigCommand {
+    /// Validate the `serve` configuration (rules, upstream, keys) and print it, secrets masked.
+    Check(Box<ServeArgs>),
 }
 
 /// Options shared by every subcommand.
@@ -67,6 +77,179 @@ pub struct ServeArgs {
     /// Limits and lifecycle.
     #[command(flatten)]
     pub limits: LimitArgs,
+    /// Configuration file (TOML, keys are the long option names, e.g. `listen`,
+    /// `fhir-base-url`); command line and environment take precedence over it.
+    #[arg(long = "config", env = "CALCIUM_CDS_CONFIG", value_name = "FILE")]
+    pub config_file: Option<PathBuf>,
+}
+
+impl ServeArgs {
+    /// Checks across settings; each problem names the settings.
+    pub fn cross_checks(&self) -> Vec<String> {
+        let mut problems = Vec::new();
+        if self.upstream.fhir_base_url.is_some() && self.limits.request_timeout_ms <= self.upstream.upstream_deadline_ms
+        {
+            problems.push(format!(
+                "request-timeout-ms ({}) must be above upstream-deadline-ms ({}), or every slow gather is cut short",
+                self.limits.request_timeout_ms, self.upstream.upstream_deadline_ms
+            ));
+        }
+        if self.limits.max_in_flight == 0 {
+            problems.push("max-in-flight must be at least 1".into());
+        }
+        if self.upstream.queue_capacity == 0 {
+            problems.push("queue-capacity must be at least 1".into());
+        }
+        problems
+    }
+}
+
+/// Options whose values are never printed.
+pub const SECRET_OPTIONS: &[&str] = &["fhir-token"];
+
+/// A command line that could not be turned into a configuration.
+#[derive(Debug)]
+pub enum CliError {
+    /// clap's own error (usage, a bad value): it prints and exits itself.
+    Usage(clap::Error),
+    /// The configuration file could not be used.
+    File(String),
+}
+
+/// The configuration file named by `--config` or `CALCIUM_CDS_CONFIG`, if any.
+fn config_file_named(args: &[std::ffi::OsString]) -> Option<PathBuf> {
+    let mut it = args.iter().map(|a| a.to_string_lossy().into_owned());
+    while let Some(a) = it.next() {
+        if a == "--config" {
+            return it.next().map(PathBuf::from);
+        }
+        if let Some(v) = a.strip_prefix("--config=") {
+            return Some(PathBuf::from(v));
+        }
+    }
+    std::env::var_os("CALCIUM_CDS_CONFIG").map(PathBuf::from)
+}
+
+/// The file's settings as (long option name, value text); unknown names are errors.
+fn read_config_file(path: &std::path::Path, known: &[String]) -> Result<Vec<(String, String)>, String> {
+    let text =
+        std::fs::read_to_string(path).map_err(|e| format!("cannot read the config file {}: {e}", path.display()))?;
+    let table: toml::Table =
+        toml::from_str(&text).map_err(|e| format!("the config file {} is not TOML: {e}", path.display()))?;
+    let mut out = Vec::new();
+    for (key, value) in table {
+        if key == "config" || !known.contains(&key) {
+            return Err(format!(
+                "the config file {} has an unknown setting '{key}' (settings are the long option names of `serve`: {})",
+                path.display(),
+                known.join(", ")
+            ));
+        }
+        let text = match value {
+            toml::Value::String(s) => s,
+            toml::Value::Integer(i) => i.to_string(),
+            toml::Value::Boolean(b) => b.to_string(),
+            toml::Value::Float(f) => f.to_string(),
+            other => {
+                return Err(format!(
+                    "the config file {}: '{key}' must be a string, number or boolean, not {}",
+                    path.display(),
+                    other.type_str()
+                ));
+            }
+        };
+        out.push((key, text));
+    }
+    Ok(out)
+}
+
+fn serve_option_names() -> Vec<String> {
+    use clap::CommandFactory;
+    let cmd = Cli::command();
+    cmd.find_subcommand("serve")
+        .map(|s| s.get_arguments().filter_map(|a| a.get_long().map(str::to_owned)).collect())
+        .unwrap_or_default()
+}
+
+/// Parse the command line, with the configuration file's settings as defaults
+/// (precedence: command line, then environment, then the file, then built-in defaults).
+/// Also returns the option names whose values came from the file.
+pub fn parse_cli(args: Vec<std::ffi::OsString>) -> Result<(Cli, ArgSources), CliError> {
+    use clap::{CommandFactory, FromArgMatches};
+    let known = serve_option_names();
+    let from_file = match config_file_named(&args) {
+        Some(path) => read_config_file(&path, &known).map_err(CliError::File)?,
+        None => Vec::new(),
+    };
+    let apply = |mut c: clap::Command| {
+        for (key, value) in &from_file {
+            let id = c.get_arguments().find(|a| a.get_long() == Some(key.as_str())).map(|a| a.get_id().clone());
+            if let Some(id) = id {
+                // Leaked once at start: a handful of short strings for the life of the process.
+                let value: &'static str = Box::leak(value.clone().into_boxed_str());
+                c = c.mut_arg(id, |a| a.default_value(value));
+            }
+        }
+        c
+    };
+    let cmd =
+        Cli::command().mut_subcommand("serve", apply).mut_subcommand("config", |c| c.mut_subcommand("check", apply));
+    let matches = cmd.try_get_matches_from(args).map_err(CliError::Usage)?;
+    let cli = Cli::from_arg_matches(&matches).map_err(CliError::Usage)?;
+    let mut sources = ArgSources::default();
+    let sub = match matches.subcommand() {
+        Some(("serve", m)) => Some(m),
+        Some(("config", m)) => m.subcommand_matches("check"),
+        _ => None,
+    };
+    if let Some(m) = sub {
+        let serve = Cli::command();
+        let args: Vec<&clap::Arg> =
+            serve.find_subcommand("serve").map(|c| c.get_arguments().collect()).unwrap_or_default();
+        for arg in args {
+            let (Some(long), id) = (arg.get_long(), arg.get_id().as_str()) else { continue };
+            let source = match m.value_source(id) {
+                Some(clap::parser::ValueSource::CommandLine) => "command line",
+                Some(clap::parser::ValueSource::EnvVariable) => "environment",
+                Some(clap::parser::ValueSource::DefaultValue) if from_file.iter().any(|(k, _)| k == long) => {
+                    "config file"
+                }
+                Some(_) => "default",
+                None => "not set",
+            };
+            let value = m
+                .try_get_raw(id)
+                .ok()
+                .flatten()
+                .map(|vals| vals.map(|v| v.to_string_lossy().into_owned()).collect::<Vec<_>>().join(","));
+            sources.0.push((long.to_owned(), value, source));
+        }
+    }
+    Ok((cli, sources))
+}
+
+/// Each `serve` option: long name, raw value, where it came from.
+#[derive(Debug, Default)]
+pub struct ArgSources(pub Vec<(String, Option<String>, &'static str)>);
+
+impl ArgSources {
+    /// The effective configuration as TOML-like lines, secrets masked.
+    pub fn render(&self) -> String {
+        let mut lines: Vec<String> = self
+            .0
+            .iter()
+            .map(|(name, value, source)| {
+                let shown = match value {
+                    None => "\"\"".to_owned(),
+                    Some(_) if SECRET_OPTIONS.contains(&name.as_str()) => "\"***\"".to_owned(),
+                    Some(v) => format!("{v:?}"),
+                };
+                format!("{name} = {shown}  # {source}")
+            })
+            .collect();
+        lines.sort();
+        lines.join("\n")
+    }
 }
 
 /// Limits and lifecycle (operational settings).
@@ -193,7 +376,13 @@ impl Default for UpstreamArgs {
 impl UpstreamArgs {
     /// The client, when a base URL is configured; an error for a bad URL or token file.
     pub fn client(&self) -> Result<Option<crate::upstream::FhirClient>, String> {
-        let Some(base) = &self.fhir_base_url else { return Ok(None) };
+        let Some(base) = &self.fhir_base_url else {
+            let smart = self.smart()?;
+            if smart.is_some() || self.fhir_token.is_some() || self.fhir_token_file.is_some() {
+                return Err("upstream credentials are set but CALCIUM_CDS_FHIR_BASE_URL is not".into());
+            }
+            return Ok(None);
+        };
         let parsed =
             reqwest::Url::parse(base).map_err(|e| format!("CALCIUM_CDS_FHIR_BASE_URL '{base}' is not a URL: {e}"))?;
         if !matches!(parsed.scheme(), "http" | "https") {

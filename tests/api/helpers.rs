@@ -51,6 +51,7 @@ pub async fn spawn_app_with_body_limit(body_limit: usize) -> TestApp {
         rules: RuleArgs { rules: None },
         upstream: calcium_cds::config::UpstreamArgs::default(),
         limits: calcium_cds::config::LimitArgs::default(),
+        config_file: None,
     };
     let app = Application::build(&settings, engine).expect("the application builds");
     let address = format!("http://127.0.0.1:{}", app.port());
@@ -91,6 +92,7 @@ pub async fn spawn_app_with(
         rules: RuleArgs { rules: None },
         upstream,
         limits,
+        config_file: None,
     };
     let app = Application::build(&settings, engine).expect("the application builds");
     let address = format!("http://127.0.0.1:{}", app.port());

@@ -33,3 +33,6 @@ mod telemetry;
 
 // Limits: in-flight cap and request timeout.
 mod limits;
+
+// `config check` and configuration errors.
+mod config_check;

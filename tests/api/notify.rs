@@ -25,6 +25,7 @@ async fn spawn(upstream: Option<&MockServer>, queue_capacity: usize) -> App {
         rules: RuleArgs { rules: None },
         upstream: up,
         limits: calcium_cds::config::LimitArgs::default(),
+        config_file: None,
     };
     let app = calcium_cds::http::Application::build(&settings, engine).unwrap();
     let address = format!("http://127.0.0.1:{}", app.port());
