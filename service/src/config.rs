@@ -77,10 +77,82 @@ pub struct ServeArgs {
     /// Limits and lifecycle.
     #[command(flatten)]
     pub limits: LimitArgs,
+    /// Inbound authorization.
+    #[command(flatten)]
+    pub auth: InboundAuthArgs,
     /// Configuration file (TOML, keys are the long option names, e.g. `listen`,
     /// `fhir-base-url`); command line and environment take precedence over it.
     #[arg(long = "config", env = "CALCIUM_CDS_CONFIG", value_name = "FILE")]
     pub config_file: Option<PathBuf>,
+}
+
+/// Inbound authorization (off by default).
+#[derive(Debug, Clone, Default, Args)]
+pub struct InboundAuthArgs {
+    /// Require a bearer JWT on every FHIR route (probes stay open).
+    #[arg(long = "auth", env = "CALCIUM_CDS_AUTH", default_value_t = false, action = clap::ArgAction::Set)]
+    pub enabled: bool,
+    /// The JWKS that signs accepted tokens, as a file.
+    #[arg(long = "auth-jwks-file", env = "CALCIUM_CDS_AUTH_JWKS_FILE")]
+    pub jwks_file: Option<PathBuf>,
+    /// The JWKS that signs accepted tokens, as a URL (read once at start).
+    #[arg(long = "auth-jwks-url", env = "CALCIUM_CDS_AUTH_JWKS_URL")]
+    pub jwks_url: Option<String>,
+    /// Accepted token issuer (`iss`).
+    #[arg(long = "auth-issuer", env = "CALCIUM_CDS_AUTH_ISSUER")]
+    pub issuer: Option<String>,
+    /// This service's audience (`aud`).
+    #[arg(long = "auth-audience", env = "CALCIUM_CDS_AUTH_AUDIENCE")]
+    pub audience: Option<String>,
+    /// Also require a token on /metrics.
+    #[arg(long = "auth-metrics", env = "CALCIUM_CDS_AUTH_METRICS", default_value_t = false, action = clap::ArgAction::Set)]
+    pub protect_metrics: bool,
+}
+
+impl InboundAuthArgs {
+    /// The verifier when authorization is on; an error naming what is missing or wrong.
+    pub fn verifier(&self) -> Result<Option<crate::inbound_auth::Verifier>, String> {
+        if !self.enabled {
+            return Ok(None);
+        }
+        let issuer = self.issuer.clone().ok_or("CALCIUM_CDS_AUTH is on but CALCIUM_CDS_AUTH_ISSUER is not set")?;
+        let audience =
+            self.audience.clone().ok_or("CALCIUM_CDS_AUTH is on but CALCIUM_CDS_AUTH_AUDIENCE is not set")?;
+        let jwks = match (&self.jwks_file, &self.jwks_url) {
+            (Some(_), Some(_)) => {
+                return Err("set CALCIUM_CDS_AUTH_JWKS_FILE or CALCIUM_CDS_AUTH_JWKS_URL, not both".into());
+            }
+            (Some(path), None) => std::fs::read_to_string(path)
+                .map_err(|e| format!("cannot read the JWKS file {}: {e}", path.display()))?,
+            (None, Some(url)) => fetch_jwks(url)?,
+            (None, None) => {
+                return Err("CALCIUM_CDS_AUTH is on but neither CALCIUM_CDS_AUTH_JWKS_FILE nor _JWKS_URL is set".into());
+            }
+        };
+        crate::inbound_auth::Verifier::new(&jwks, issuer, audience).map(Some)
+    }
+}
+
+/// Read a JWKS over HTTP(S) on a thread of its own (start-up is not async).
+fn fetch_jwks(url: &str) -> Result<String, String> {
+    let url = url.to_owned();
+    std::thread::spawn(move || {
+        let rt = tokio::runtime::Builder::new_current_thread().enable_all().build().map_err(|e| e.to_string())?;
+        rt.block_on(async {
+            let resp = reqwest::Client::new()
+                .get(&url)
+                .timeout(std::time::Duration::from_secs(10))
+                .send()
+                .await
+                .map_err(|e| format!("the JWKS at {url} could not be read: {e}"))?;
+            if !resp.status().is_success() {
+                return Err(format!("the JWKS at {url} answered HTTP {}", resp.status().as_u16()));
+            }
+            resp.text().await.map_err(|e| format!("the JWKS at {url} could not be read: {e}"))
+        })
+    })
+    .join()
+    .map_err(|_| "the JWKS fetch failed".to_owned())?
 }
 
 impl ServeArgs {

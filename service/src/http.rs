@@ -38,6 +38,8 @@ pub struct AppState {
     ready: AtomicBool,
     metrics: Arc<crate::metrics::Metrics>,
     in_flight: Arc<tokio::sync::Semaphore>,
+    verifier: Option<crate::inbound_auth::Verifier>,
+    protect_metrics: bool,
     request_timeout: std::time::Duration,
     capability: Value,
     operation: Value,
@@ -73,6 +75,8 @@ impl Application {
             body_limit: settings.body_limit,
             ready: AtomicBool::new(false),
             metrics,
+            verifier: settings.auth.verifier()?,
+            protect_metrics: settings.auth.protect_metrics,
             in_flight: Arc::new(tokio::sync::Semaphore::new(settings.limits.max_in_flight.max(1))),
             request_timeout: std::time::Duration::from_millis(settings.limits.request_timeout_ms.max(1)),
             capability,
@@ -93,6 +97,7 @@ impl Application {
             App::new()
                 .app_data(data.clone())
                 .wrap(actix_web::middleware::from_fn(limit))
+                .wrap(actix_web::middleware::from_fn(authorize))
                 .wrap(actix_web::middleware::from_fn(access_log))
                 .route("/fhir/$assess", web::post().to(assess))
                 .route("/fhir/Patient/{id}/$assess", web::post().to(assess_patient))
@@ -518,6 +523,62 @@ async fn limit(
         return Ok(req.into_response(res));
     };
     next.call(req).await.map(ServiceResponse::map_into_boxed_body)
+}
+
+/// Inbound authorization (when on): a bearer JWT with the route's scope on the
+/// FHIR operations and notifications; a valid token on /metrics when protected.
+/// Probes, the CapabilityStatement and the OperationDefinition stay open.
+async fn authorize(
+    req: ServiceRequest,
+    next: Next<impl MessageBody + 'static>,
+) -> Result<ServiceResponse<actix_web::body::BoxBody>, actix_web::Error> {
+    let Some(state) = req.app_data::<web::Data<AppState>>().cloned() else {
+        return next.call(req).await.map(ServiceResponse::map_into_boxed_body);
+    };
+    let Some(verifier) = &state.verifier else {
+        return next.call(req).await.map(ServiceResponse::map_into_boxed_body);
+    };
+    let route = req.match_pattern().unwrap_or_default();
+    let need = crate::inbound_auth::needed_for(&route);
+    let protected = need.is_some() || (route == "/metrics" && state.protect_metrics);
+    if !protected {
+        return next.call(req).await.map(ServiceResponse::map_into_boxed_body);
+    }
+    let authorization = req.headers().get(header::AUTHORIZATION).and_then(|v| v.to_str().ok());
+    let refusal = match verifier.check(authorization, need) {
+        Ok(()) => return next.call(req).await.map(ServiceResponse::map_into_boxed_body),
+        Err(r) => r,
+    };
+    use crate::inbound_auth::Refusal;
+    let (status, code, text, challenge) = match &refusal {
+        Refusal::Missing => (
+            401,
+            IssueCode::Login,
+            "A bearer token is required.".to_owned(),
+            r#"Bearer realm="calcium-cds""#.to_owned(),
+        ),
+        Refusal::Invalid(why) => (
+            401,
+            IssueCode::Security,
+            format!("The bearer token was refused: {why}."),
+            format!(r#"Bearer realm="calcium-cds", error="invalid_token", error_description="{why}""#),
+        ),
+        Refusal::Scope(why) => (
+            403,
+            IssueCode::Forbidden,
+            format!("The bearer token was refused: {why}."),
+            format!(
+                r#"Bearer realm="calcium-cds", error="insufficient_scope", scope="{}""#,
+                need.map(|n| n.to_string()).unwrap_or_default()
+            ),
+        ),
+    };
+    tracing::info!(status, route = %route, "request not authorized");
+    let mut res = error_response(&RequestError::single(status, code, "", text));
+    if let Ok(v) = HeaderValue::from_str(&challenge) {
+        res.headers_mut().insert(header::WWW_AUTHENTICATE, v);
+    }
+    Ok(req.into_response(res))
 }
 
 /// A body that did not arrive within the request timeout.

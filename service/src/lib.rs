@@ -12,6 +12,7 @@ pub mod config;
 pub mod engine;
 pub mod fhir;
 pub mod http;
+pub mod inbound_auth;
 pub mod metrics;
 pub mod notify;
 pub mod rules;

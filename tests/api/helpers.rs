@@ -51,6 +51,7 @@ pub async fn spawn_app_with_body_limit(body_limit: usize) -> TestApp {
         rules: RuleArgs { rules: None },
         upstream: calcium_cds::config::UpstreamArgs::default(),
         limits: calcium_cds::config::LimitArgs::default(),
+        auth: calcium_cds::config::InboundAuthArgs::default(),
         config_file: None,
     };
     let app = Application::build(&settings, engine).expect("the application builds");
@@ -84,6 +85,15 @@ pub async fn spawn_app_with(
     upstream: calcium_cds::config::UpstreamArgs,
     limits: calcium_cds::config::LimitArgs,
 ) -> TestApp {
+    spawn_app_full(upstream, limits, calcium_cds::config::InboundAuthArgs::default()).await
+}
+
+/// Start the service with chosen upstream settings, limits and inbound authorization.
+pub async fn spawn_app_full(
+    upstream: calcium_cds::config::UpstreamArgs,
+    limits: calcium_cds::config::LimitArgs,
+    auth: calcium_cds::config::InboundAuthArgs,
+) -> TestApp {
     let rules = load_rules(None).expect("the embedded rules load");
     let engine = Engine::new(rules).expect("the engine builds");
     let settings = ServeArgs {
@@ -92,6 +102,7 @@ pub async fn spawn_app_with(
         rules: RuleArgs { rules: None },
         upstream,
         limits,
+        auth,
         config_file: None,
     };
     let app = Application::build(&settings, engine).expect("the application builds");

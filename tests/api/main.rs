@@ -36,3 +36,6 @@ mod limits;
 
 // `config check` and configuration errors.
 mod config_check;
+
+// Inbound authorization: bearer JWTs against a JWKS, scopes, open probes.
+mod inbound_auth;

@@ -25,6 +25,7 @@ async fn spawn(upstream: Option<&MockServer>, queue_capacity: usize) -> App {
         rules: RuleArgs { rules: None },
         upstream: up,
         limits: calcium_cds::config::LimitArgs::default(),
+        auth: calcium_cds::config::InboundAuthArgs::default(),
         config_file: None,
     };
     let app = calcium_cds::http::Application::build(&settings, engine).unwrap();

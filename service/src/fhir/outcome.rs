@@ -60,6 +60,12 @@ pub enum IssueCode {
     Throttled,
     /// timeout
     Timeout,
+    /// login (authentication required)
+    Login,
+    /// security (credentials refused)
+    Security,
+    /// forbidden (not allowed)
+    Forbidden,
 }
 
 impl IssueCode {
@@ -80,6 +86,9 @@ impl IssueCode {
             Self::NotFound => "not-found",
             Self::Throttled => "throttled",
             Self::Timeout => "timeout",
+            Self::Login => "login",
+            Self::Security => "security",
+            Self::Forbidden => "forbidden",
         }
     }
 }

@@ -1,0 +1,215 @@
+//! Inbound authorization: bearer JWTs checked against a JWKS, with keys
+//! generated in the test (ECDSA P-256 via aws-lc-rs). Missing or bad tokens
+//! are 401 with WWW-Authenticate and an OperationOutcome, a missing scope is
+//! 403, and the probes stay open.
+
+use base64::Engine as _;
+use calcium_cds::config::{InboundAuthArgs, LimitArgs, UpstreamArgs};
+use jsonwebtoken::{Algorithm, EncodingKey, Header};
+use serde_json::{Value, json};
+use wiremock::matchers::{method, path};
+use wiremock::{Mock, MockServer, ResponseTemplate};
+
+use crate::helpers::{FHIR_JSON, TestApp, assert_r4_valid, now_unix, spawn_app_full};
+
+const ISSUER: &str = "https://auth.larkspur-childrens.example.org";
+const AUDIENCE: &str = "https://calcium-cds.larkspur-childrens.example.org";
+const KID: &str = "larkspur-test-signing-1";
+
+struct TestKey {
+    encoding: EncodingKey,
+    jwk: Value,
+}
+
+fn generate_key(kid: &str) -> TestKey {
+    use aws_lc_rs::signature::{ECDSA_P256_SHA256_FIXED_SIGNING, EcdsaKeyPair, KeyPair};
+    let rng = aws_lc_rs::rand::SystemRandom::new();
+    let pkcs8 = EcdsaKeyPair::generate_pkcs8(&ECDSA_P256_SHA256_FIXED_SIGNING, &rng).expect("a key");
+    let pair = EcdsaKeyPair::from_pkcs8(&ECDSA_P256_SHA256_FIXED_SIGNING, pkcs8.as_ref()).expect("a key pair");
+    let point = pair.public_key().as_ref();
+    assert_eq!(point.len(), 65, "an uncompressed P-256 point");
+    let b64 = base64::engine::general_purpose::URL_SAFE_NO_PAD;
+    TestKey {
+        encoding: EncodingKey::from_ec_der(pkcs8.as_ref()),
+        jwk: json!({ "kty": "EC", "crv": "P-256", "use": "sig", "alg": "ES256", "kid": kid,
+                     "x": b64.encode(&point[1..33]), "y": b64.encode(&point[33..65]) }),
+    }
+}
+
+fn token(key: &TestKey, claims: Value) -> String {
+    let mut header = Header::new(Algorithm::ES256);
+    header.kid = Some(KID.into());
+    jsonwebtoken::encode(&header, &claims, &key.encoding).expect("signed")
+}
+
+fn claims(scope: &str) -> Value {
+    json!({ "iss": ISSUER, "aud": AUDIENCE, "sub": "larkspur-ehr-integration", "exp": now_unix() + 300,
+            "nbf": now_unix() - 10, "scope": scope })
+}
+
+fn jwks_file(key: &TestKey) -> std::path::PathBuf {
+    let path = std::env::temp_dir().join(format!("calcium-cds-jwks-{}-{}.json", std::process::id(), now_unix()));
+    let nanos = std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map_or(0, |d| d.subsec_nanos());
+    let path = path.with_extension(format!("{nanos}.json"));
+    std::fs::write(&path, json!({ "keys": [key.jwk] }).to_string()).expect("written");
+    path
+}
+
+fn auth_on(key: &TestKey, protect_metrics: bool) -> InboundAuthArgs {
+    InboundAuthArgs {
+        enabled: true,
+        jwks_file: Some(jwks_file(key)),
+        issuer: Some(ISSUER.into()),
+        audience: Some(AUDIENCE.into()),
+        protect_metrics,
+        ..InboundAuthArgs::default()
+    }
+}
+
+fn example() -> Vec<u8> {
+    std::fs::read(
+        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+            .join("../fhir-profiles/examples/total-calcium-si-units.json"),
+    )
+    .expect("an example")
+}
+
+async fn post(app: &TestApp, bearer: Option<&str>) -> (u16, Option<String>, Value) {
+    let mut req =
+        app.client.post(format!("{}/fhir/$assess", app.address)).header("content-type", FHIR_JSON).body(example());
+    if let Some(t) = bearer {
+        req = req.bearer_auth(t);
+    }
+    let resp = req.send().await.expect("an answer");
+    let status = resp.status().as_u16();
+    let challenge = resp.headers().get("www-authenticate").and_then(|v| v.to_str().ok()).map(str::to_owned);
+    let body: Value = resp.json().await.expect("JSON");
+    (status, challenge, body)
+}
+
+async fn spawn(auth: InboundAuthArgs) -> TestApp {
+    spawn_app_full(UpstreamArgs::default(), LimitArgs::default(), auth).await
+}
+
+#[tokio::test]
+async fn a_valid_token_with_the_scope_is_served() {
+    let key = generate_key(KID);
+    let app = spawn(auth_on(&key, false)).await;
+    let (status, _, body) = post(&app, Some(&token(&key, claims("system/GuidanceResponse.c")))).await;
+    assert_eq!(status, 200, "{body}");
+    assert_eq!(body["resourceType"], "Bundle");
+}
+
+#[tokio::test]
+async fn missing_and_bad_tokens_are_401_with_a_challenge_and_an_operation_outcome() {
+    // Arrange
+    let key = generate_key(KID);
+    let other = generate_key(KID);
+    let app = spawn(auth_on(&key, false)).await;
+    let scope = "system/GuidanceResponse.c";
+    let mut expired = claims(scope);
+    expired["exp"] = json!(now_unix() - 120);
+    let mut early = claims(scope);
+    early["nbf"] = json!(now_unix() + 600);
+    let mut wrong_iss = claims(scope);
+    wrong_iss["iss"] = json!("https://elsewhere.example.org");
+    let mut wrong_aud = claims(scope);
+    wrong_aud["aud"] = json!("https://another-service.example.org");
+    let cases: Vec<(&str, Option<String>, &str)> = vec![
+        ("no token", None, "required"),
+        ("not a JWT", Some("not-a-jwt".into()), "not a JWT"),
+        ("expired", Some(token(&key, expired)), "expired"),
+        ("not yet valid", Some(token(&key, early)), "nbf"),
+        ("wrong issuer", Some(token(&key, wrong_iss)), "issuer"),
+        ("wrong audience", Some(token(&key, wrong_aud)), "audience"),
+        ("signed by another key", Some(token(&other, claims(scope))), "signature"),
+    ];
+
+    for (what, bearer, expected) in cases {
+        // Act
+        let (status, challenge, body) = post(&app, bearer.as_deref()).await;
+
+        // Assert
+        assert_eq!(status, 401, "{what}: {body}");
+        assert!(
+            challenge.as_deref().is_some_and(|c| c.starts_with("Bearer realm=\"calcium-cds\"")),
+            "{what}: {challenge:?}"
+        );
+        if bearer.is_some() {
+            assert!(challenge.as_deref().is_some_and(|c| c.contains("error=\"invalid_token\"")), "{what}");
+        }
+        assert_r4_valid(&body);
+        let text = body["issue"][0]["diagnostics"].as_str().unwrap_or("");
+        assert!(text.contains(expected), "{what}: {text}");
+    }
+}
+
+#[tokio::test]
+async fn a_token_without_the_scope_is_403() {
+    let key = generate_key(KID);
+    let app = spawn(auth_on(&key, false)).await;
+    let (status, challenge, body) =
+        post(&app, Some(&token(&key, claims("system/Observation.rs system/GuidanceResponse.r")))).await;
+    assert_eq!(status, 403, "{body}");
+    assert_r4_valid(&body);
+    assert_eq!(body["issue"][0]["code"], "forbidden");
+    let c = challenge.unwrap_or_default();
+    assert!(c.contains("error=\"insufficient_scope\"") && c.contains("system/GuidanceResponse.c"), "{c}");
+}
+
+#[tokio::test]
+async fn probes_and_metadata_stay_open_and_metrics_can_be_protected() {
+    let key = generate_key(KID);
+    let app = spawn(auth_on(&key, true)).await;
+    for route in ["/livez", "/readyz", "/fhir/metadata"] {
+        let r = app.client.get(format!("{}{route}", app.address)).send().await.expect("an answer");
+        assert_eq!(r.status().as_u16(), 200, "{route}");
+    }
+    let r = app.client.get(format!("{}/metrics", app.address)).send().await.expect("an answer");
+    assert_eq!(r.status().as_u16(), 401, "metrics protected");
+    let r = app
+        .client
+        .get(format!("{}/metrics", app.address))
+        .bearer_auth(token(&key, claims("")))
+        .send()
+        .await
+        .expect("an answer");
+    assert_eq!(r.status().as_u16(), 200, "any valid token reads the metrics");
+}
+
+#[tokio::test]
+async fn the_jwks_can_come_from_a_url() {
+    let key = generate_key(KID);
+    let server = MockServer::start().await;
+    Mock::given(method("GET"))
+        .and(path("/.well-known/jwks.json"))
+        .respond_with(ResponseTemplate::new(200).set_body_json(json!({ "keys": [key.jwk] })))
+        .expect(1)
+        .mount(&server)
+        .await;
+    let auth = InboundAuthArgs {
+        jwks_file: None,
+        jwks_url: Some(format!("{}/.well-known/jwks.json", server.uri())),
+        ..auth_on(&key, false)
+    };
+    let app = spawn(auth).await;
+    let (status, _, body) = post(&app, Some(&token(&key, claims("system/*.cruds")))).await;
+    assert_eq!(status, 200, "{body}");
+}
+
+#[test]
+fn incomplete_auth_settings_are_refused_naming_the_setting() {
+    let err = InboundAuthArgs { enabled: true, issuer: Some(ISSUER.into()), ..InboundAuthArgs::default() }
+        .verifier()
+        .expect_err("no audience");
+    assert!(err.contains("CALCIUM_CDS_AUTH_AUDIENCE"), "{err}");
+    let err = InboundAuthArgs {
+        enabled: true,
+        issuer: Some(ISSUER.into()),
+        audience: Some(AUDIENCE.into()),
+        ..InboundAuthArgs::default()
+    }
+    .verifier()
+    .expect_err("no JWKS");
+    assert!(err.contains("JWKS"), "{err}");
+}
