@@ -13,9 +13,7 @@ fn run(args: &[&str], env: &[(&str, &str)]) -> Output {
 }
 
 fn temp_file(name: &str, contents: &str) -> String {
-    let path = std::env::temp_dir().join(format!("calcium-cds-config-{name}-{}.toml", std::process::id()));
-    std::fs::write(&path, contents).expect("written");
-    path.display().to_string()
+    crate::upstream::temp_file(&format!("config-{name}"), contents).display().to_string()
 }
 
 #[test]

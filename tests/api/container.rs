@@ -7,13 +7,10 @@
 
 use std::io::Read;
 use std::os::unix::process::CommandExt;
-use std::path::PathBuf;
 use std::process::{Child, Command, Stdio};
 use std::time::{Duration, Instant};
 
-fn repo(rel: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("..").join(rel)
-}
+use crate::helpers::repo_path as repo;
 
 /// What the Dockerfile's final stage says.
 #[derive(Debug, Default)]
@@ -127,7 +124,7 @@ async fn the_binary_run_as_the_image_runs_it_answers_the_probes_and_stops_on_sig
     // Assert: probes, a real assessment, then a clean stop on SIGTERM.
     assert_eq!(ready, Some(200), "readiness");
     assert_eq!(get_status(&client, &format!("{base}/livez")).await, Some(200), "liveness");
-    let example = std::fs::read(repo("fhir-profiles/examples/ionized-low-seizure-toddler.json")).expect("an example");
+    let example = crate::helpers::example("ionized-low-seizure-toddler");
     let resp = client
         .post(format!("{base}/fhir/$assess"))
         .header("content-type", "application/fhir+json")

@@ -307,6 +307,11 @@ fn the_fhir_version_waiver_is_exactly_one_error() {
 // ---------------------------------------------------------------------------
 // Example files
 
+/// A path in the repository, from its top (e.g. `deploy/Dockerfile`).
+pub fn repo_path(rel: &str) -> std::path::PathBuf {
+    std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("..").join(rel)
+}
+
 /// Directory of the example requests.
 pub fn examples_dir() -> std::path::PathBuf {
     std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("../fhir-profiles/examples")

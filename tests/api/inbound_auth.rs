@@ -66,12 +66,8 @@ fn auth_on(key: &TestKey, protect_metrics: bool) -> InboundAuthArgs {
     }
 }
 
-fn example() -> Vec<u8> {
-    std::fs::read(
-        std::path::PathBuf::from(env!("CARGO_MANIFEST_DIR"))
-            .join("../fhir-profiles/examples/total-calcium-si-units.json"),
-    )
-    .expect("an example")
+fn example() -> String {
+    crate::helpers::example("total-calcium-si-units")
 }
 
 async fn post(app: &TestApp, bearer: Option<&str>) -> (u16, Option<String>, Value) {

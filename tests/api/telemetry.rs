@@ -6,16 +6,11 @@
 //! name, identifier, birth date and resource id found in those bundles.
 
 use std::io::{BufRead, BufReader};
-use std::path::PathBuf;
 use std::process::{Child, Command, Stdio};
 use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
 
 use serde_json::Value;
-
-fn repo(rel: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("..").join(rel)
-}
 
 struct Service {
     child: Child,
@@ -107,7 +102,7 @@ fn identifying_strings(doc: &Value, out: &mut Vec<String>) {
 }
 
 fn examples() -> Vec<(String, Vec<u8>)> {
-    let mut files: Vec<_> = std::fs::read_dir(repo("fhir-profiles/examples"))
+    let mut files: Vec<_> = std::fs::read_dir(crate::helpers::examples_dir())
         .expect("the examples")
         .filter_map(Result::ok)
         .map(|e| e.path())
@@ -204,7 +199,7 @@ async fn request_lines_carry_method_route_template_status_latency_and_request_id
 async fn metrics_count_requests_assessments_and_name_the_rule_set() {
     let service = start("info");
     let client = reqwest::Client::new();
-    let example = std::fs::read(repo("fhir-profiles/examples/ionized-low-seizure-toddler.json")).expect("an example");
+    let example = crate::helpers::example("ionized-low-seizure-toddler");
     for _ in 0..2 {
         let resp = client
             .post(format!("{}/fhir/$assess", service.base))
