@@ -87,7 +87,7 @@ pub struct ServeArgs {
 }
 
 /// Inbound authorization (off by default).
-#[derive(Debug, Clone, Default, Args)]
+#[derive(Debug, Clone, Args)]
 pub struct InboundAuthArgs {
     /// Require a bearer JWT on every FHIR route (probes stay open).
     #[arg(long = "auth", env = "CALCIUM_CDS_AUTH", default_value_t = false, action = clap::ArgAction::Set)]
@@ -104,9 +104,26 @@ pub struct InboundAuthArgs {
     /// This service's audience (`aud`).
     #[arg(long = "auth-audience", env = "CALCIUM_CDS_AUTH_AUDIENCE")]
     pub audience: Option<String>,
+    /// Least seconds between two reads of the JWKS URL when a token names an unknown key.
+    #[arg(long = "auth-jwks-min-interval-s", env = "CALCIUM_CDS_AUTH_JWKS_MIN_INTERVAL_S", default_value_t = 30)]
+    pub jwks_min_interval_s: u64,
     /// Also require a token on /metrics.
     #[arg(long = "auth-metrics", env = "CALCIUM_CDS_AUTH_METRICS", default_value_t = false, action = clap::ArgAction::Set)]
     pub protect_metrics: bool,
+}
+
+impl Default for InboundAuthArgs {
+    fn default() -> Self {
+        Self {
+            enabled: false,
+            jwks_file: None,
+            jwks_url: None,
+            issuer: None,
+            audience: None,
+            jwks_min_interval_s: 30,
+            protect_metrics: false,
+        }
+    }
 }
 
 impl InboundAuthArgs {
@@ -129,7 +146,11 @@ impl InboundAuthArgs {
                 return Err("CALCIUM_CDS_AUTH is on but neither CALCIUM_CDS_AUTH_JWKS_FILE nor _JWKS_URL is set".into());
             }
         };
-        crate::inbound_auth::Verifier::new(&jwks, issuer, audience).map(Some)
+        let source = self.jwks_url.as_ref().map(|url| crate::inbound_auth::JwksSource {
+            url: url.clone(),
+            min_interval: std::time::Duration::from_secs(self.jwks_min_interval_s),
+        });
+        crate::inbound_auth::Verifier::new(&jwks, issuer, audience, source).map(Some)
     }
 }
 
@@ -138,18 +159,7 @@ fn fetch_jwks(url: &str) -> Result<String, String> {
     let url = url.to_owned();
     std::thread::spawn(move || {
         let rt = tokio::runtime::Builder::new_current_thread().enable_all().build().map_err(|e| e.to_string())?;
-        rt.block_on(async {
-            let resp = reqwest::Client::new()
-                .get(&url)
-                .timeout(std::time::Duration::from_secs(10))
-                .send()
-                .await
-                .map_err(|e| format!("the JWKS at {url} could not be read: {e}"))?;
-            if !resp.status().is_success() {
-                return Err(format!("the JWKS at {url} answered HTTP {}", resp.status().as_u16()));
-            }
-            resp.text().await.map_err(|e| format!("the JWKS at {url} could not be read: {e}"))
-        })
+        rt.block_on(crate::inbound_auth::fetch_jwks(&url))
     })
     .join()
     .map_err(|_| "the JWKS fetch failed".to_owned())?

@@ -545,7 +545,7 @@ async fn authorize(
         return next.call(req).await.map(ServiceResponse::map_into_boxed_body);
     }
     let authorization = req.headers().get(header::AUTHORIZATION).and_then(|v| v.to_str().ok());
-    let refusal = match verifier.check(authorization, need) {
+    let refusal = match verifier.check_refreshing(authorization, need).await {
         Ok(()) => return next.call(req).await.map(ServiceResponse::map_into_boxed_body),
         Err(r) => r,
     };

@@ -11,6 +11,31 @@ use jsonwebtoken::jwk::JwkSet;
 use jsonwebtoken::{Algorithm, DecodingKey, Validation};
 use serde::Deserialize;
 
+/// The refusal text when no JWKS key matches the token.
+const UNKNOWN_KID: &str = "no key in the JWKS matches the token's kid";
+
+fn parse_jwks(text: &str) -> Result<JwkSet, String> {
+    let keys: JwkSet = serde_json::from_str(text).map_err(|e| format!("the JWKS is not a JWK Set: {e}"))?;
+    if keys.keys.is_empty() {
+        return Err("the JWKS has no keys".into());
+    }
+    Ok(keys)
+}
+
+/// Read a JWKS over HTTP(S).
+pub async fn fetch_jwks(url: &str) -> Result<String, String> {
+    let resp = reqwest::Client::new()
+        .get(url)
+        .timeout(std::time::Duration::from_secs(10))
+        .send()
+        .await
+        .map_err(|e| format!("the JWKS at {url} could not be read: {e}"))?;
+    if !resp.status().is_success() {
+        return Err(format!("the JWKS at {url} answered HTTP {}", resp.status().as_u16()));
+    }
+    resp.text().await.map_err(|e| format!("the JWKS at {url} could not be read: {e}"))
+}
+
 /// Clock skew allowed on `exp` and `nbf`, seconds.
 pub const LEEWAY_SECONDS: u64 = 30;
 
@@ -81,11 +106,22 @@ struct Claims {
     scope: Option<String>,
 }
 
+/// Where the JWKS was read from, for re-reading on an unknown `kid` (key rotation).
+#[derive(Debug, Clone)]
+pub struct JwksSource {
+    /// The JWKS URL.
+    pub url: String,
+    /// Least time between two reads.
+    pub min_interval: std::time::Duration,
+}
+
 /// The configured verifier.
 pub struct Verifier {
-    keys: JwkSet,
+    keys: std::sync::RwLock<JwkSet>,
     issuer: String,
     audience: String,
+    source: Option<JwksSource>,
+    last_read: tokio::sync::Mutex<std::time::Instant>,
 }
 
 impl std::fmt::Debug for Verifier {
@@ -99,12 +135,43 @@ impl std::fmt::Debug for Verifier {
 
 impl Verifier {
     /// A verifier over a JWKS document.
-    pub fn new(jwks_json: &str, issuer: String, audience: String) -> Result<Self, String> {
-        let keys: JwkSet = serde_json::from_str(jwks_json).map_err(|e| format!("the JWKS is not a JWK Set: {e}"))?;
-        if keys.keys.is_empty() {
-            return Err("the JWKS has no keys".into());
+    pub fn new(jwks_json: &str, issuer: String, audience: String, source: Option<JwksSource>) -> Result<Self, String> {
+        let keys = parse_jwks(jwks_json)?;
+        Ok(Self {
+            keys: std::sync::RwLock::new(keys),
+            issuer,
+            audience,
+            source,
+            last_read: tokio::sync::Mutex::new(std::time::Instant::now()),
+        })
+    }
+
+    /// Check, and when the token names a key the JWKS lacks and the JWKS came
+    /// from a URL, read it again (at most once per `min_interval`) and check once more.
+    pub async fn check_refreshing(&self, authorization: Option<&str>, need: Option<Needed>) -> Result<(), Refusal> {
+        match self.check(authorization, need) {
+            Err(Refusal::Invalid(why)) if why == UNKNOWN_KID => {
+                let Some(source) = &self.source else { return Err(Refusal::Invalid(why)) };
+                {
+                    let mut last = self.last_read.lock().await;
+                    if last.elapsed() < source.min_interval {
+                        return Err(Refusal::Invalid(why));
+                    }
+                    *last = std::time::Instant::now();
+                    match fetch_jwks(&source.url).await.and_then(|text| parse_jwks(&text)) {
+                        Ok(keys) => {
+                            if let Ok(mut k) = self.keys.write() {
+                                *k = keys;
+                            }
+                            tracing::info!("JWKS read again for an unknown key id");
+                        }
+                        Err(e) => tracing::warn!(error = %e, "JWKS could not be read again"),
+                    }
+                }
+                self.check(authorization, need)
+            }
+            other => other,
         }
-        Ok(Self { keys, issuer, audience })
     }
 
     /// Check the Authorization header value for `need`.
@@ -120,13 +187,16 @@ impl Verifier {
         if !ALGORITHMS.contains(&header.alg) {
             return Err(Refusal::Invalid(format!("the algorithm {:?} is not accepted", header.alg)));
         }
-        let jwk = match &header.kid {
-            Some(kid) => self.keys.find(kid),
-            None if self.keys.keys.len() == 1 => self.keys.keys.first(),
-            None => None,
-        }
-        .ok_or_else(|| Refusal::Invalid("no key in the JWKS matches the token's kid".into()))?;
-        let key = DecodingKey::from_jwk(jwk).map_err(|_| Refusal::Invalid("the JWKS key cannot be used".into()))?;
+        let key = {
+            let keys = self.keys.read().map_err(|_| Refusal::Invalid("the JWKS is unavailable".into()))?;
+            let jwk = match &header.kid {
+                Some(kid) => keys.find(kid),
+                None if keys.keys.len() == 1 => keys.keys.first(),
+                None => None,
+            }
+            .ok_or_else(|| Refusal::Invalid(UNKNOWN_KID.into()))?;
+            DecodingKey::from_jwk(jwk).map_err(|_| Refusal::Invalid("the JWKS key cannot be used".into()))?
+        };
         let mut validation = Validation::new(header.alg);
         validation.set_issuer(&[&self.issuer]);
         validation.set_audience(&[&self.audience]);

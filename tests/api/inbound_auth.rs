@@ -209,3 +209,44 @@ fn incomplete_auth_settings_are_refused_naming_the_setting() {
     .expect_err("no JWKS");
     assert!(err.contains("JWKS"), "{err}");
 }
+
+#[tokio::test]
+async fn a_rotated_key_is_found_by_reading_the_jwks_url_again() {
+    // Arrange: at start the JWKS has the old key; the issuer then adds a new one.
+    let old_key = generate_key(KID);
+    let mut new_key = generate_key("larkspur-test-signing-2");
+    new_key.jwk["kid"] = json!("larkspur-test-signing-2");
+    let server = MockServer::start().await;
+    Mock::given(method("GET"))
+        .and(path("/.well-known/jwks.json"))
+        .respond_with(ResponseTemplate::new(200).set_body_json(json!({ "keys": [old_key.jwk] })))
+        .up_to_n_times(1)
+        .with_priority(1)
+        .expect(1)
+        .mount(&server)
+        .await;
+    Mock::given(method("GET"))
+        .and(path("/.well-known/jwks.json"))
+        .respond_with(ResponseTemplate::new(200).set_body_json(json!({ "keys": [old_key.jwk, new_key.jwk] })))
+        .with_priority(2)
+        .expect(1)
+        .mount(&server)
+        .await;
+    let auth = InboundAuthArgs {
+        jwks_file: None,
+        jwks_url: Some(format!("{}/.well-known/jwks.json", server.uri())),
+        jwks_min_interval_s: 0,
+        ..auth_on(&old_key, false)
+    };
+    let app = spawn(auth).await;
+    let mut header = Header::new(Algorithm::ES256);
+    header.kid = Some("larkspur-test-signing-2".into());
+    let rotated =
+        jsonwebtoken::encode(&header, &claims("system/GuidanceResponse.c"), &new_key.encoding).expect("signed");
+
+    // Act
+    let (status, _, body) = post(&app, Some(&rotated)).await;
+
+    // Assert: served after one more read; a token with an unknown kid and no URL stays refused (above).
+    assert_eq!(status, 200, "{body}");
+}
