@@ -18,8 +18,6 @@ use serde::{Deserialize, Serialize};
 pub const ASSERTION_LIFETIME: Duration = Duration::from_secs(300);
 /// A cached token is renewed this long before its stated expiry (clock skew and flight time).
 pub const EXPIRY_MARGIN: Duration = Duration::from_secs(30);
-/// Marks a token error that is a timeout (the upstream call is then a 504, not a 502).
-pub const TIMED_OUT: &str = "(timed out)";
 /// The OAuth client assertion type for a JWT (RFC 7523).
 pub const ASSERTION_TYPE: &str = "urn:ietf:params:oauth:client-assertion-type:jwt-bearer";
 
@@ -81,7 +79,6 @@ pub struct TokenSource {
     settings: SmartSettings,
     key: EncodingKey,
     cache: tokio::sync::Mutex<Option<CachedToken>>,
-    fetches: AtomicU64,
 }
 
 impl std::fmt::Debug for TokenSource {
@@ -107,6 +104,21 @@ struct TokenResponse {
     expires_in: Option<u64>,
 }
 
+/// A token that could not be obtained.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct TokenError {
+    /// What went wrong.
+    pub how: String,
+    /// A timeout (the upstream call is then a 504, not a 502).
+    pub timed_out: bool,
+}
+
+impl From<String> for TokenError {
+    fn from(how: String) -> Self {
+        Self { how, timed_out: false }
+    }
+}
+
 static JTI_COUNTER: AtomicU64 = AtomicU64::new(0);
 
 impl TokenSource {
@@ -117,15 +129,10 @@ impl TokenSource {
             SigningAlg::Es384 => EncodingKey::from_ec_pem(private_key_pem),
         }
         .map_err(|e| format!("the private key is not a {:?} PEM key: {e}", settings.alg))?;
-        let source = Self { settings, key, cache: tokio::sync::Mutex::new(None), fetches: AtomicU64::new(0) };
+        let source = Self { settings, key, cache: tokio::sync::Mutex::new(None) };
         // Sign once now so that a key of the wrong kind fails at start, not at the first request.
         source.assertion()?;
         Ok(source)
-    }
-
-    /// Token requests made so far (for metrics and tests).
-    pub fn fetch_count(&self) -> u64 {
-        self.fetches.load(Ordering::Relaxed)
     }
 
     /// A fresh signed client assertion.
@@ -158,14 +165,17 @@ impl TokenSource {
         http: &reqwest::Client,
         call_timeout: Duration,
         deadline: Instant,
-    ) -> Result<String, String> {
+    ) -> Result<String, TokenError> {
         let mut cache = self.cache.lock().await;
         if let Some(t) = cache.as_ref().filter(|t| Instant::now() < t.renew_at) {
             return Ok(t.value.clone());
         }
         let timeout = call_timeout.min(deadline.saturating_duration_since(Instant::now()));
         if timeout.is_zero() {
-            return Err(format!("the overall deadline passed before a token was obtained {TIMED_OUT}"));
+            return Err(TokenError {
+                how: "the overall deadline passed before a token was obtained".into(),
+                timed_out: true,
+            });
         }
         let fetched = self.fetch(http, timeout).await?;
         let value = fetched.access_token.clone();
@@ -188,8 +198,7 @@ impl TokenSource {
         }
     }
 
-    async fn fetch(&self, http: &reqwest::Client, timeout: Duration) -> Result<TokenResponse, String> {
-        self.fetches.fetch_add(1, Ordering::Relaxed);
+    async fn fetch(&self, http: &reqwest::Client, timeout: Duration) -> Result<TokenResponse, TokenError> {
         let assertion = self.assertion()?;
         let form = [
             ("grant_type", "client_credentials"),
@@ -204,22 +213,23 @@ impl TokenSource {
             .timeout(timeout)
             .send()
             .await
-            .map_err(|e| {
-                if e.is_timeout() {
-                    format!("the token endpoint did not answer within {} ms {TIMED_OUT}", timeout.as_millis())
+            .map_err(|e| TokenError {
+                how: if e.is_timeout() {
+                    format!("the token endpoint did not answer within {} ms", timeout.as_millis())
                 } else {
                     format!("the token endpoint could not be reached: {e}")
-                }
+                },
+                timed_out: e.is_timeout(),
             })?;
         let status = resp.status();
         if !status.is_success() {
-            return Err(format!("the token endpoint answered HTTP {}", status.as_u16()));
+            return Err(format!("the token endpoint answered HTTP {}", status.as_u16()).into());
         }
         let body = resp.bytes().await.map_err(|e| format!("the token response was not read: {e}"))?;
         let token: TokenResponse =
             serde_json::from_slice(&body).map_err(|e| format!("the token response has no usable access_token: {e}"))?;
         if token.access_token.is_empty() {
-            return Err("the token response has an empty access_token".into());
+            return Err("the token response has an empty access_token".to_owned().into());
         }
         Ok(token)
     }

@@ -125,11 +125,35 @@ impl FhirClient {
     }
 
     /// The bearer token to send, if any.
-    async fn token(&self, deadline: Instant) -> Result<Option<String>, String> {
+    async fn token(&self, deadline: Instant) -> Result<Option<String>, crate::smart::TokenError> {
         match &self.settings.auth {
             Auth::None => Ok(None),
             Auth::Static(t) => Ok(Some(t.clone())),
             Auth::Smart(source) => source.token(&self.http, self.settings.call_timeout, deadline).await.map(Some),
+        }
+    }
+
+    /// Add the trace context and the bearer token to a request.
+    fn prepared(req: reqwest::RequestBuilder, token: Option<&String>) -> reqwest::RequestBuilder {
+        let req = match crate::trace::current() {
+            Some(t) => req.header("traceparent", t.child_header()),
+            None => req,
+        };
+        match token {
+            Some(t) => req.bearer_auth(t),
+            None => req,
+        }
+    }
+
+    /// After a 401: forget a SMART token so that the next try fetches a new one.
+    /// True when a retry with a new token makes sense (SMART only).
+    async fn forget_refused_token(&self, token: Option<&String>) -> bool {
+        match (&self.settings.auth, token) {
+            (Auth::Smart(source), Some(used)) => {
+                source.invalidate(used).await;
+                true
+            }
+            _ => false,
         }
     }
 
@@ -152,25 +176,15 @@ impl FhirClient {
             if left.is_zero() {
                 return Err(fail("the overall deadline passed".into(), true));
             }
-            let token = self.token(deadline).await.map_err(|how| {
-                let timed_out = how.contains(crate::smart::TIMED_OUT);
-                fail(how, timed_out)
-            })?;
+            let token = self.token(deadline).await.map_err(|e| fail(e.how, e.timed_out))?;
             let left = deadline.saturating_duration_since(Instant::now());
             let timeout = self.settings.call_timeout.min(left);
-            let mut req = self.http.get(url).header(reqwest::header::ACCEPT, "application/fhir+json").timeout(timeout);
-            if let Some(t) = crate::trace::current() {
-                req = req.header("traceparent", t.child_header());
-            }
-            if let Some(t) = &token {
-                req = req.bearer_auth(t);
-            }
-            let outcome = req.send().await;
+            let req = self.http.get(url).header(reqwest::header::ACCEPT, "application/fhir+json").timeout(timeout);
+            let outcome = Self::prepared(req, token.as_ref()).send().await;
             let (retryable, wait, err) = match outcome {
                 Ok(resp) if resp.status() == reqwest::StatusCode::UNAUTHORIZED && !refreshed => {
                     // A SMART token may expire or be revoked mid-flight: fetch a new one, once.
-                    if let (Auth::Smart(source), Some(used)) = (&self.settings.auth, &token) {
-                        source.invalidate(used).await;
+                    if self.forget_refused_token(token.as_ref()).await {
                         refreshed = true;
                         continue;
                     }
@@ -272,30 +286,20 @@ impl FhirClient {
         let mut attempt = 0;
         let mut refreshed = false;
         loop {
-            let token = self.token(deadline).await.map_err(|how| {
-                let timed_out = how.contains(crate::smart::TIMED_OUT);
-                fail(how, timed_out)
-            })?;
+            let token = self.token(deadline).await.map_err(|e| fail(e.how, e.timed_out))?;
             let left = deadline.saturating_duration_since(Instant::now());
             let timeout = self.settings.call_timeout.min(left);
-            let mut req = self
+            let req = self
                 .http
                 .post(self.settings.base_url.trim_end_matches('/'))
                 .header(reqwest::header::CONTENT_TYPE, "application/fhir+json")
                 .header(reqwest::header::ACCEPT, "application/fhir+json")
                 .timeout(timeout)
                 .body(bundle.to_string());
-            if let Some(t) = crate::trace::current() {
-                req = req.header("traceparent", t.child_header());
-            }
-            if let Some(t) = &token {
-                req = req.bearer_auth(t);
-            }
-            let (retryable, err) = match req.send().await {
+            let (retryable, err) = match Self::prepared(req, token.as_ref()).send().await {
                 Ok(resp) if resp.status() == reqwest::StatusCode::UNAUTHORIZED && !refreshed => {
                     // Safe to resend: every entry is a conditional create.
-                    if let (Auth::Smart(source), Some(used)) = (&self.settings.auth, &token) {
-                        source.invalidate(used).await;
+                    if self.forget_refused_token(token.as_ref()).await {
                         refreshed = true;
                         continue;
                     }
