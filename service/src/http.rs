@@ -398,7 +398,8 @@ async fn work_event(state: &AppState, job: &crate::notify::Job) -> Result<&'stat
         // The reference is not logged (it names a patient's resource).
         None => client.read(&job.focus).await.map_err(|f| format!("read of the event's focus: {}", f.how))?,
     };
-    let patient = match crate::notify::relevant_patient(&focus, &state.engine.observation_code_tokens()) {
+    let codes = state.engine.observation_code_tokens();
+    let patient = match crate::notify::relevant_patient(&focus, &codes) {
         Ok(p) if valid_id(&p) => p,
         Ok(_) => return Ok("ignored: the focus names a patient id that is not a FHIR id"),
         Err(crate::notify::NotRelevant::NotAnObservation(_)) => return Ok("ignored: the focus is not an Observation"),
@@ -412,10 +413,7 @@ async fn work_event(state: &AppState, job: &crate::notify::Job) -> Result<&'stat
         now.div_euclid(86_400) - i64::from(state.engine.lookback_days()),
     )
     .to_string();
-    let gathered = client
-        .gather(&patient, &state.engine.observation_code_tokens(), &since)
-        .await
-        .map_err(|f| format!("{}: {}", f.what, f.how))?;
+    let gathered = client.gather(&patient, &codes, &since).await.map_err(|f| format!("{}: {}", f.what, f.how))?;
     let outcome = state
         .engine
         .assess_document(&gathered.bundle, now, false, &gathered.failed)
