@@ -170,6 +170,12 @@ fn media_type_ok(req: &HttpRequest) -> bool {
     essence == "application/fhir+json" || essence == "application/json"
 }
 
+/// The earliest date (YYYY-MM-DD) the upstream searches reach back to: the rules' lookback.
+fn search_since(engine: &Engine, now: i64) -> String {
+    crate::clinical::time::CivilDate::from_days_since_epoch(now.div_euclid(86_400) - i64::from(engine.lookback_days()))
+        .to_string()
+}
+
 fn now_unix() -> i64 {
     SystemTime::now().duration_since(UNIX_EPOCH).map(|d| d.as_secs() as i64).unwrap_or(0)
 }
@@ -253,9 +259,7 @@ async fn assess_patient(path: web::Path<String>, state: web::Data<AppState>) -> 
         ));
     };
     let now = now_unix();
-    let since_days = i64::from(state.engine.lookback_days());
-    let since =
-        crate::clinical::time::CivilDate::from_days_since_epoch(now.div_euclid(86_400) - since_days).to_string();
+    let since = search_since(&state.engine, now);
     let codes = state.engine.observation_code_tokens();
     let Ok(gathered) = tokio::time::timeout(state.request_timeout, client.gather(&id, &codes, &since)).await else {
         return timed_out(&state);
@@ -409,10 +413,7 @@ async fn work_event(state: &AppState, job: &crate::notify::Job) -> Result<&'stat
         Err(crate::notify::NotRelevant::NoPatient) => return Ok("ignored: the Observation names no patient"),
     };
     let now = now_unix();
-    let since = crate::clinical::time::CivilDate::from_days_since_epoch(
-        now.div_euclid(86_400) - i64::from(state.engine.lookback_days()),
-    )
-    .to_string();
+    let since = search_since(&state.engine, now);
     let gathered = client.gather(&patient, &codes, &since).await.map_err(|f| format!("{}: {}", f.what, f.how))?;
     let outcome = state
         .engine
