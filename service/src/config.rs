@@ -80,6 +80,9 @@ pub struct ServeArgs {
     /// Inbound authorization.
     #[command(flatten)]
     pub auth: InboundAuthArgs,
+    /// Trace export.
+    #[command(flatten)]
+    pub telemetry: TelemetryArgs,
     /// Configuration file (TOML, keys are the long option names, e.g. `listen`,
     /// `fhir-base-url`); command line and environment take precedence over it.
     #[arg(long = "config", env = "CALCIUM_CDS_CONFIG", value_name = "FILE")]
@@ -181,6 +184,12 @@ impl ServeArgs {
         }
         if self.upstream.queue_capacity == 0 {
             problems.push("queue-capacity must be at least 1".into());
+        }
+        if self.telemetry.otlp_queue == 0 || self.telemetry.otlp_batch == 0 {
+            problems.push("otlp-queue and otlp-batch must be at least 1".into());
+        }
+        if let Err(e) = self.telemetry.export_settings() {
+            problems.push(e);
         }
         problems
     }
@@ -354,6 +363,47 @@ pub struct LimitArgs {
 impl Default for LimitArgs {
     fn default() -> Self {
         Self { max_in_flight: 64, request_timeout_ms: 15000, shutdown_delay_ms: 5000, shutdown_timeout_s: 25 }
+    }
+}
+
+/// Trace export over OTLP/HTTP (off unless an endpoint is set).
+#[derive(Debug, Clone, Args)]
+pub struct TelemetryArgs {
+    /// OTLP/HTTP base URL of a collector (e.g. http://otel-collector:4318); spans go to
+    /// `<url>/v1/traces` in the JSON encoding. Unset: no trace export.
+    #[arg(long = "otlp-endpoint", env = "CALCIUM_CDS_OTLP_ENDPOINT")]
+    pub otlp_endpoint: Option<String>,
+    /// Longest wait before a partly filled batch of spans is sent, milliseconds.
+    #[arg(long = "otlp-flush-ms", env = "CALCIUM_CDS_OTLP_FLUSH_MS", default_value_t = 1000)]
+    pub otlp_flush_ms: u64,
+    /// Spans waiting for export at most; beyond it new spans are dropped and counted.
+    #[arg(long = "otlp-queue", env = "CALCIUM_CDS_OTLP_QUEUE", default_value_t = 2048)]
+    pub otlp_queue: usize,
+    /// Spans per export request at most.
+    #[arg(long = "otlp-batch", env = "CALCIUM_CDS_OTLP_BATCH", default_value_t = 512)]
+    pub otlp_batch: usize,
+    /// Time an export request may take, milliseconds.
+    #[arg(long = "otlp-timeout-ms", env = "CALCIUM_CDS_OTLP_TIMEOUT_MS", default_value_t = 5000)]
+    pub otlp_timeout_ms: u64,
+}
+
+impl Default for TelemetryArgs {
+    fn default() -> Self {
+        Self { otlp_endpoint: None, otlp_flush_ms: 1000, otlp_queue: 2048, otlp_batch: 512, otlp_timeout_ms: 5000 }
+    }
+}
+
+impl TelemetryArgs {
+    /// The export settings, when an endpoint is set; an error for a bad URL.
+    pub fn export_settings(&self) -> Result<Option<crate::otlp::ExportSettings>, String> {
+        let Some(endpoint) = &self.otlp_endpoint else { return Ok(None) };
+        Ok(Some(crate::otlp::ExportSettings {
+            traces_url: crate::otlp::traces_url(endpoint)?,
+            flush: std::time::Duration::from_millis(self.otlp_flush_ms.max(1)),
+            queue: self.otlp_queue.max(1),
+            batch: self.otlp_batch.max(1),
+            timeout: std::time::Duration::from_millis(self.otlp_timeout_ms.max(1)),
+        }))
     }
 }
 

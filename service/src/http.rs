@@ -43,6 +43,7 @@ pub struct AppState {
     request_timeout: std::time::Duration,
     capability: Value,
     operation: Value,
+    spans: Option<crate::otlp::Exporter>,
 }
 
 /// A built, bound application.
@@ -63,7 +64,19 @@ impl Application {
         capability["software"]["version"] = Value::String(VERSION.to_owned());
         let operation: Value = serde_json::from_str(OPERATION).map_err(|e| format!("OperationDefinition: {e}"))?;
         let metrics = Arc::new(crate::metrics::Metrics::default());
-        let upstream = settings.upstream.client()?.map(|c| c.with_metrics(metrics.clone()));
+        let spans = match settings.telemetry.export_settings()? {
+            Some(export) => {
+                let http = reqwest::Client::builder().build().map_err(|e| format!("OTLP HTTP client: {e}"))?;
+                let resource = vec![
+                    ("service.name", "calcium-cds".to_owned()),
+                    ("service.version", VERSION.to_owned()),
+                    ("calcium_cds.rules.version", engine.rules.rules.ruleset.version.clone()),
+                ];
+                Some(crate::otlp::Exporter::start(http, export, resource))
+            }
+            None => None,
+        };
+        let upstream = settings.upstream.client()?.map(|c| c.with_metrics(metrics.clone()).with_spans(spans.clone()));
         let (tx, rx) = tokio::sync::mpsc::channel(settings.upstream.queue_capacity.max(1));
         let queue = upstream.is_some().then_some(tx);
         let state = Arc::new(AppState {
@@ -81,14 +94,17 @@ impl Application {
             request_timeout: std::time::Duration::from_millis(settings.limits.request_timeout_ms.max(1)),
             capability,
             operation,
+            spans,
         });
         if state.queue.is_some() {
             let worker_state = state.clone();
             tokio::spawn(async move {
                 let mut rx = rx;
                 while let Some(job) = rx.recv().await {
-                    // Each event starts its own trace; its upstream calls carry it.
-                    crate::trace::scope(crate::trace::TraceContext::start(), work(&worker_state, job)).await;
+                    // Each event starts its own trace (sampled when spans are exported);
+                    // its upstream calls carry it.
+                    let ctx = crate::trace::TraceContext::start(worker_state.spans.is_some());
+                    crate::trace::scope(ctx, work(&worker_state, job)).await;
                 }
             });
         }
@@ -383,7 +399,16 @@ async fn notifications(req: HttpRequest, payload: web::Payload, state: web::Data
 
 /// Work one event: find the patient, gather, assess, and write back when there is something to say.
 async fn work(state: &AppState, job: crate::notify::Job) {
-    match work_event(state, &job).await {
+    let start = SystemTime::now();
+    let result = work_event(state, &job).await;
+    if let (Some(exporter), Some(ctx)) = (&state.spans, crate::trace::current()) {
+        let mut span = crate::otlp::Span::of(&ctx, "notification event".into(), crate::otlp::SpanKind::Consumer, start);
+        span.error = result.is_err();
+        let outcome = if result.is_ok() { "worked" } else { "not completed" };
+        span.attributes.push(("calcium_cds.outcome", crate::otlp::AttrValue::Str(outcome.into())));
+        exporter.record(span);
+    }
+    match result {
         Ok(done) => tracing::info!(done, "notification event worked"),
         Err(why) => {
             // The 202 went out already: forget the delivery so that a redelivery is worked again.
@@ -443,6 +468,7 @@ async fn metrics_text(state: web::Data<AppState>) -> HttpResponse {
         version: VERSION,
         rules: (&rules.rules.ruleset.name, &rules.rules.ruleset.version, &rules.sha256),
         queue_depth: state.queue.as_ref().map(|q| q.max_capacity() - q.capacity()),
+        spans: state.spans.as_ref().map(crate::otlp::Exporter::stats),
     });
     HttpResponse::Ok().content_type("text/plain; version=0.0.4; charset=utf-8").body(text)
 }
@@ -609,17 +635,30 @@ async fn access_log(
     let id = request_id(&req);
     let method = req.method().to_string();
     let route = req.match_pattern().unwrap_or_else(|| "unmatched".to_owned());
-    let metrics = req.app_data::<web::Data<AppState>>().map(|s| s.metrics.clone());
+    let state = req.app_data::<web::Data<AppState>>().cloned();
+    let spans = state.as_ref().and_then(|s| s.spans.clone());
     let trace = req
         .headers()
         .get("traceparent")
         .and_then(|v| v.to_str().ok())
         .and_then(crate::trace::TraceContext::parse)
-        .unwrap_or_else(crate::trace::TraceContext::start);
+        .unwrap_or_else(|| crate::trace::TraceContext::start(spans.is_some()));
     let trace_id = trace.trace_id.clone();
-    let mut res = crate::trace::scope(trace, next.call(req)).await?;
-    if let Some(m) = metrics {
-        m.request(&route, res.status().as_u16(), start.elapsed());
+    let started_at = SystemTime::now();
+    let mut res = crate::trace::scope(trace.clone(), next.call(req)).await?;
+    let status = res.status().as_u16();
+    if let Some(s) = &state {
+        s.metrics.request(&route, status, start.elapsed());
+    }
+    if let Some(exporter) = spans.filter(|_| trace.sampled()) {
+        use crate::otlp::AttrValue;
+        let mut span =
+            crate::otlp::Span::of(&trace, format!("{method} {route}"), crate::otlp::SpanKind::Server, started_at);
+        span.attributes.push(("http.request.method", AttrValue::Str(method.clone())));
+        span.attributes.push(("http.route", AttrValue::Str(route.clone())));
+        span.attributes.push(("http.response.status_code", AttrValue::Int(i64::from(status))));
+        span.error = status >= 500;
+        exporter.record(span);
     }
     if let Ok(v) = HeaderValue::from_str(&id) {
         res.headers_mut().insert(header::HeaderName::from_static("x-request-id"), v);
@@ -627,7 +666,7 @@ async fn access_log(
     tracing::info!(
         method = %method,
         route = %route,
-        status = res.status().as_u16(),
+        status,
         latency_ms = start.elapsed().as_secs_f64() * 1000.0,
         request_id = %id,
         trace_id = %trace_id,

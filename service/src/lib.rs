@@ -15,6 +15,7 @@ pub mod http;
 pub mod inbound_auth;
 pub mod metrics;
 pub mod notify;
+pub mod otlp;
 pub mod rules;
 pub mod smart;
 pub mod telemetry;

@@ -101,6 +101,8 @@ pub struct Snapshot<'a> {
     pub rules: (&'a str, &'a str, &'a str),
     /// Notification jobs waiting, when a queue exists.
     pub queue_depth: Option<usize>,
+    /// Trace export counts, when spans are exported.
+    pub spans: Option<&'a crate::otlp::ExportStats>,
 }
 
 impl Metrics {
@@ -150,6 +152,16 @@ impl Metrics {
                 "# HELP calcium_cds_queue_depth Notification jobs waiting.\n# TYPE calcium_cds_queue_depth gauge\ncalcium_cds_queue_depth {depth}"
             );
         }
+        if let Some(stats) = snap.spans {
+            use std::sync::atomic::Ordering::Relaxed;
+            for (name, help, value) in [
+                ("calcium_cds_spans_exported_total", "Spans sent to the OTLP collector and accepted.", &stats.exported),
+                ("calcium_cds_spans_dropped_total", "Spans dropped because the export queue was full.", &stats.dropped),
+                ("calcium_cds_span_export_failures_total", "OTLP export requests that failed.", &stats.failed_requests),
+            ] {
+                let _ = writeln!(out, "# HELP {name} {help}\n# TYPE {name} counter\n{name} {}", value.load(Relaxed));
+            }
+        }
         let Ok(g) = self.inner.lock() else { return out };
         render_histogram(
             &mut out,
@@ -195,7 +207,8 @@ mod tests {
         let m = Metrics::default();
         m.request("/fhir/$assess", 200, Duration::from_millis(3));
         m.request("/fhir/$assess", 200, Duration::from_millis(30));
-        let text = m.render(&Snapshot { version: "0.1.0", rules: ("r", "1", "abc"), queue_depth: Some(2) });
+        let text =
+            m.render(&Snapshot { version: "0.1.0", rules: ("r", "1", "abc"), queue_depth: Some(2), spans: None });
         assert!(text.contains("calcium_cds_http_request_duration_seconds_bucket{route=\"/fhir/$assess\",status=\"200\",le=\"0.005\"} 1"), "{text}");
         assert!(
             text.contains(

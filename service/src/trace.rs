@@ -14,6 +14,8 @@ pub struct TraceContext {
     pub trace_id: String,
     /// This hop's span id (lowercase hex, 16 digits, not all zero).
     pub span_id: String,
+    /// The caller's span id from the incoming header, when there was one.
+    pub parent_id: Option<String>,
     /// Trace flags (hex, 2 digits).
     pub flags: String,
 }
@@ -56,21 +58,33 @@ impl TraceContext {
         if !is_hex(span_id, 16) || span_id.bytes().all(|b| b == b'0') || !is_hex(flags, 2) {
             return None;
         }
-        Some(Self { trace_id: trace_id.to_owned(), span_id: new_span_id(), flags: flags.to_owned() })
+        Some(Self {
+            trace_id: trace_id.to_owned(),
+            span_id: new_span_id(),
+            parent_id: Some(span_id.to_owned()),
+            flags: flags.to_owned(),
+        })
     }
 
-    /// A new trace (sampled flag off: the caller decides sampling).
-    pub fn start() -> Self {
+    /// A new trace. `sampled` sets the sampled flag: on when this service
+    /// exports spans (it then records the trace), off otherwise.
+    pub fn start(sampled: bool) -> Self {
         Self {
             trace_id: format!("{:016x}{:016x}", random_u64(), random_u64()),
             span_id: new_span_id(),
-            flags: "00".into(),
+            parent_id: None,
+            flags: if sampled { "01" } else { "00" }.into(),
         }
     }
 
-    /// The header for an outgoing call: same trace, a new parent id.
-    pub fn child_header(&self) -> String {
-        format!("00-{}-{}-{}", self.trace_id, new_span_id(), self.flags)
+    /// Whether the sampled flag (bit 0 of the flags) is set.
+    pub fn sampled(&self) -> bool {
+        u8::from_str_radix(&self.flags, 16).is_ok_and(|f| f & 1 == 1)
+    }
+
+    /// The header for an outgoing call made as span `span_id` of this trace.
+    pub fn header_for(&self, span_id: &str) -> String {
+        format!("00-{}-{}-{}", self.trace_id, span_id, self.flags)
     }
 }
 
@@ -94,7 +108,9 @@ mod tests {
         let t = TraceContext::parse("00-4bf92f3577b34da6a3ce929d0e0e4736-00f067aa0ba902b7-01").expect("valid");
         assert_eq!(t.trace_id, "4bf92f3577b34da6a3ce929d0e0e4736");
         assert_eq!(t.flags, "01");
+        assert!(t.sampled());
         assert_ne!(t.span_id, "00f067aa0ba902b7", "our hop gets its own span id");
+        assert_eq!(t.parent_id.as_deref(), Some("00f067aa0ba902b7"), "the caller's span is our parent");
         for bad in [
             "00-00000000000000000000000000000000-00f067aa0ba902b7-01",
             "00-4bf92f3577b34da6a3ce929d0e0e4736-0000000000000000-01",
@@ -105,8 +121,10 @@ mod tests {
         ] {
             assert_eq!(TraceContext::parse(bad), None, "{bad}");
         }
-        let child = t.child_header();
+        let child = t.header_for(&new_span_id());
         assert!(child.starts_with("00-4bf92f3577b34da6a3ce929d0e0e4736-") && child.ends_with("-01"), "{child}");
         assert!(TraceContext::parse(&child).is_some());
+        assert!(TraceContext::start(true).sampled() && !TraceContext::start(false).sampled());
+        assert_eq!(TraceContext::start(true).parent_id, None);
     }
 }

@@ -96,6 +96,7 @@ pub struct FhirClient {
     http: reqwest::Client,
     settings: UpstreamSettings,
     metrics: Option<std::sync::Arc<crate::metrics::Metrics>>,
+    spans: Option<crate::otlp::Exporter>,
 }
 
 fn jitter(attempt: u32) -> Duration {
@@ -114,13 +115,20 @@ fn retry_after(resp: &reqwest::Response) -> Option<Duration> {
 impl FhirClient {
     /// A client over an injected `reqwest::Client`.
     pub fn new(http: reqwest::Client, settings: UpstreamSettings) -> Self {
-        Self { http, settings, metrics: None }
+        Self { http, settings, metrics: None, spans: None }
     }
 
     /// Record every call's latency and failure in `metrics`.
     #[must_use]
     pub fn with_metrics(mut self, metrics: std::sync::Arc<crate::metrics::Metrics>) -> Self {
         self.metrics = Some(metrics);
+        self
+    }
+
+    /// Record a client span for every HTTP attempt of a sampled trace.
+    #[must_use]
+    pub fn with_spans(mut self, exporter: Option<crate::otlp::Exporter>) -> Self {
+        self.spans = exporter;
         self
     }
 
@@ -133,16 +141,58 @@ impl FhirClient {
         }
     }
 
-    /// Add the trace context and the bearer token to a request.
-    fn prepared(req: reqwest::RequestBuilder, token: Option<&String>) -> reqwest::RequestBuilder {
-        let req = match crate::trace::current() {
-            Some(t) => req.header("traceparent", t.child_header()),
+    /// Send one attempt with the trace context and the bearer token; the
+    /// attempt is its own client span (its id is the parent id sent upstream),
+    /// recorded when the trace is sampled and spans are exported. `what` names
+    /// the call (never a URL: URLs carry patient ids).
+    async fn send(
+        &self,
+        req: reqwest::RequestBuilder,
+        token: Option<&String>,
+        method: &'static str,
+        what: &str,
+    ) -> reqwest::Result<reqwest::Response> {
+        use crate::otlp::AttrValue;
+        let ctx = crate::trace::current();
+        let span_id = crate::trace::new_span_id();
+        let req = match &ctx {
+            Some(t) => req.header("traceparent", t.header_for(&span_id)),
             None => req,
         };
-        match token {
+        let req = match token {
             Some(t) => req.bearer_auth(t),
             None => req,
+        };
+        let start = std::time::SystemTime::now();
+        let result = req.send().await;
+        if let (Some(exporter), Some(t)) = (&self.spans, ctx.filter(crate::trace::TraceContext::sampled)) {
+            let call = crate::metrics::upstream_label(what);
+            let mut span = crate::otlp::Span::of(&t, format!("{method} {call}"), crate::otlp::SpanKind::Client, start);
+            span.parent_span_id = Some(t.span_id.clone());
+            span.span_id = span_id;
+            span.attributes.push(("http.request.method", AttrValue::Str(method.to_owned())));
+            span.attributes.push(("calcium_cds.call", AttrValue::Str(call)));
+            match &result {
+                Ok(resp) => {
+                    span.attributes
+                        .push(("http.response.status_code", AttrValue::Int(i64::from(resp.status().as_u16()))));
+                    span.error = !resp.status().is_success();
+                }
+                Err(e) => {
+                    let kind = if e.is_timeout() {
+                        "timeout"
+                    } else if e.is_connect() {
+                        "connect"
+                    } else {
+                        "transport"
+                    };
+                    span.attributes.push(("error.type", AttrValue::Str(kind.to_owned())));
+                    span.error = true;
+                }
+            }
+            exporter.record(span);
         }
+        result
     }
 
     /// After a 401: forget a SMART token so that the next try fetches a new one.
@@ -180,7 +230,7 @@ impl FhirClient {
             let left = deadline.saturating_duration_since(Instant::now());
             let timeout = self.settings.call_timeout.min(left);
             let req = self.http.get(url).header(reqwest::header::ACCEPT, "application/fhir+json").timeout(timeout);
-            let outcome = Self::prepared(req, token.as_ref()).send().await;
+            let outcome = self.send(req, token.as_ref(), "GET", what).await;
             let (retryable, wait, err) = match outcome {
                 Ok(resp) if resp.status() == reqwest::StatusCode::UNAUTHORIZED && !refreshed => {
                     // A SMART token may expire or be revoked mid-flight: fetch a new one, once.
@@ -296,7 +346,7 @@ impl FhirClient {
                 .header(reqwest::header::ACCEPT, "application/fhir+json")
                 .timeout(timeout)
                 .body(bundle.to_string());
-            let (retryable, err) = match Self::prepared(req, token.as_ref()).send().await {
+            let (retryable, err) = match self.send(req, token.as_ref(), "POST", "write-back transaction").await {
                 Ok(resp) if resp.status() == reqwest::StatusCode::UNAUTHORIZED && !refreshed => {
                     // Safe to resend: every entry is a conditional create.
                     if self.forget_refused_token(token.as_ref()).await {

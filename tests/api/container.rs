@@ -161,3 +161,83 @@ async fn the_binary_run_as_the_image_runs_it_answers_the_probes_and_stops_on_sig
     assert!(exit.success(), "a clean exit after SIGTERM: {exit}");
     let _ = std::fs::remove_dir_all(&dir);
 }
+
+/// A free loopback port (bound and released; the binary binds it next).
+fn free_port() -> u16 {
+    std::net::TcpListener::bind("127.0.0.1:0").and_then(|l| l.local_addr()).map(|a| a.port()).expect("a free port")
+}
+
+#[tokio::test(flavor = "multi_thread", worker_threads = 2)]
+async fn a_request_in_flight_at_sigterm_is_answered_before_the_process_exits() {
+    use wiremock::matchers::{method, path};
+    use wiremock::{Mock, MockServer};
+
+    use crate::upstream::{PATIENT_ID, fhir, ionized_calcium, mount_empty_other_searches, patient, searchset, weight};
+
+    // Arrange: an EHR whose Observation search takes 1.5 s, and the binary pointed at it.
+    let ehr = MockServer::start().await;
+    Mock::given(method("GET"))
+        .and(path(format!("/Patient/{PATIENT_ID}")))
+        .respond_with(fhir(200, &patient()))
+        .mount(&ehr)
+        .await;
+    let labs = [ionized_calcium("ica-term-1", 0.95), weight("wt-term-1", 21.0)];
+    Mock::given(method("GET"))
+        .and(path("/Observation"))
+        .respond_with(fhir(200, &searchset(&ehr.uri(), &labs, None)).set_delay(Duration::from_millis(1500)))
+        .mount(&ehr)
+        .await;
+    mount_empty_other_searches(&ehr).await;
+    let port = free_port();
+    let mut child = Running(
+        Command::new(env!("CARGO_BIN_EXE_calcium-cds"))
+            .arg("serve")
+            .env_clear()
+            .env("CALCIUM_CDS_LISTEN", format!("127.0.0.1:{port}"))
+            .env("CALCIUM_CDS_FHIR_BASE_URL", ehr.uri())
+            .env("CALCIUM_CDS_SHUTDOWN_DELAY_MS", "200")
+            .stdout(Stdio::null())
+            .stderr(Stdio::null())
+            .spawn()
+            .expect("the binary starts"),
+    );
+    let client = reqwest::Client::new();
+    let base = format!("http://127.0.0.1:{port}");
+    let start = Instant::now();
+    while get_status(&client, &format!("{base}/readyz")).await != Some(200) {
+        assert!(start.elapsed() < Duration::from_secs(20), "the service did not become ready");
+        tokio::time::sleep(Duration::from_millis(50)).await;
+    }
+
+    // Act: start a patient assessment, wait until it is waiting on the slow search, then SIGTERM.
+    let in_flight = tokio::spawn({
+        let client = client.clone();
+        let url = format!("{base}/fhir/Patient/{PATIENT_ID}/$assess");
+        async move { client.post(url).send().await.map(|r| r.status().as_u16()) }
+    });
+    let waiting = Instant::now();
+    loop {
+        let requests = ehr.received_requests().await.unwrap_or_default();
+        if requests.iter().any(|r| r.url.path() == "/Observation") {
+            break;
+        }
+        assert!(waiting.elapsed() < Duration::from_secs(10), "the assessment never reached the Observation search");
+        tokio::time::sleep(Duration::from_millis(20)).await;
+    }
+    let pid = child.0.id().to_string();
+    assert!(Command::new("kill").args(["-TERM", &pid]).status().expect("kill runs").success());
+
+    // Assert: the in-flight request gets its full answer, and then the process exits cleanly.
+    let status = in_flight.await.expect("the request task").expect("an answer, not a dropped connection");
+    assert_eq!(status, 200, "the request in flight at SIGTERM is answered");
+    let stop = Instant::now();
+    let exit = loop {
+        if let Ok(Some(status)) = child.0.try_wait() {
+            break status;
+        }
+        assert!(stop.elapsed() < Duration::from_secs(30), "the service did not exit after SIGTERM");
+        tokio::time::sleep(Duration::from_millis(50)).await;
+    };
+    assert!(exit.success(), "a clean exit: {exit}");
+    assert_eq!(get_status(&client, &format!("{base}/livez")).await, None, "the listener is closed");
+}

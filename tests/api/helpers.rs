@@ -43,24 +43,7 @@ pub async fn spawn_app() -> TestApp {
 
 /// Start the service with a chosen request body limit (bytes).
 pub async fn spawn_app_with_body_limit(body_limit: usize) -> TestApp {
-    let rules = load_rules(None).expect("the embedded rules load");
-    let engine = Engine::new(rules).expect("the engine builds");
-    let settings = ServeArgs {
-        listen: "127.0.0.1:0".parse().expect("a socket address"),
-        body_limit,
-        rules: RuleArgs { rules: None },
-        upstream: calcium_cds::config::UpstreamArgs::default(),
-        limits: calcium_cds::config::LimitArgs::default(),
-        auth: calcium_cds::config::InboundAuthArgs::default(),
-        config_file: None,
-    };
-    let app = Application::build(&settings, engine).expect("the application builds");
-    let address = format!("http://127.0.0.1:{}", app.port());
-    // actix's Server is a plain future; its workers run on their own threads.
-    tokio::spawn(app.run_until_stopped());
-    let client =
-        reqwest::Client::builder().redirect(reqwest::redirect::Policy::none()).build().expect("an HTTP client");
-    TestApp { address, client }
+    spawn_app_settings(ServeArgs { body_limit, ..default_settings() }).await
 }
 
 /// Start the service with an upstream FHIR server at `base_url` (optionally
@@ -94,19 +77,30 @@ pub async fn spawn_app_full(
     limits: calcium_cds::config::LimitArgs,
     auth: calcium_cds::config::InboundAuthArgs,
 ) -> TestApp {
-    let rules = load_rules(None).expect("the embedded rules load");
-    let engine = Engine::new(rules).expect("the engine builds");
-    let settings = ServeArgs {
+    spawn_app_settings(ServeArgs { upstream, limits, auth, ..default_settings() }).await
+}
+
+/// The settings the harness starts from: a free port, embedded rules, everything else at its default.
+pub fn default_settings() -> ServeArgs {
+    ServeArgs {
         listen: "127.0.0.1:0".parse().expect("a socket address"),
         body_limit: DEFAULT_BODY_LIMIT,
         rules: RuleArgs { rules: None },
-        upstream,
-        limits,
-        auth,
+        upstream: calcium_cds::config::UpstreamArgs::default(),
+        limits: calcium_cds::config::LimitArgs::default(),
+        auth: calcium_cds::config::InboundAuthArgs::default(),
+        telemetry: calcium_cds::config::TelemetryArgs::default(),
         config_file: None,
-    };
+    }
+}
+
+/// Start the service with the given settings (port 0 picks a free port).
+pub async fn spawn_app_settings(settings: ServeArgs) -> TestApp {
+    let rules = load_rules(None).expect("the embedded rules load");
+    let engine = Engine::new(rules).expect("the engine builds");
     let app = Application::build(&settings, engine).expect("the application builds");
     let address = format!("http://127.0.0.1:{}", app.port());
+    // actix's Server is a plain future; its workers run on their own threads.
     tokio::spawn(app.run_until_stopped());
     let client =
         reqwest::Client::builder().redirect(reqwest::redirect::Policy::none()).build().expect("an HTTP client");

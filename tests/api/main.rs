@@ -39,3 +39,6 @@ mod config_check;
 
 // Inbound authorization: bearer JWTs against a JWKS, scopes, open probes.
 mod inbound_auth;
+
+// Trace export over OTLP/HTTP: span parentage, sampling, refusals, no patient data.
+mod otlp;
