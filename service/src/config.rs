@@ -98,7 +98,8 @@ pub struct InboundAuthArgs {
     /// The JWKS that signs accepted tokens, as a file.
     #[arg(long = "auth-jwks-file", env = "CALCIUM_CDS_AUTH_JWKS_FILE")]
     pub jwks_file: Option<PathBuf>,
-    /// The JWKS that signs accepted tokens, as a URL (read once at start).
+    /// The JWKS that signs accepted tokens, as a URL (read at start, every
+    /// `auth-jwks-max-age-s`, and on a token naming an unknown key).
     #[arg(long = "auth-jwks-url", env = "CALCIUM_CDS_AUTH_JWKS_URL")]
     pub jwks_url: Option<String>,
     /// Accepted token issuer (`iss`).
@@ -110,6 +111,9 @@ pub struct InboundAuthArgs {
     /// Least seconds between two reads of the JWKS URL when a token names an unknown key.
     #[arg(long = "auth-jwks-min-interval-s", env = "CALCIUM_CDS_AUTH_JWKS_MIN_INTERVAL_S", default_value_t = 30)]
     pub jwks_min_interval_s: u64,
+    /// Seconds after which the JWKS URL is read again regardless, so that a removed key stops being trusted.
+    #[arg(long = "auth-jwks-max-age-s", env = "CALCIUM_CDS_AUTH_JWKS_MAX_AGE_S", default_value_t = 300)]
+    pub jwks_max_age_s: u64,
     /// Also require a token on /metrics.
     #[arg(long = "auth-metrics", env = "CALCIUM_CDS_AUTH_METRICS", default_value_t = false, action = clap::ArgAction::Set)]
     pub protect_metrics: bool,
@@ -124,6 +128,7 @@ impl Default for InboundAuthArgs {
             issuer: None,
             audience: None,
             jwks_min_interval_s: 30,
+            jwks_max_age_s: 300,
             protect_metrics: false,
         }
     }
@@ -152,6 +157,7 @@ impl InboundAuthArgs {
         let source = self.jwks_url.as_ref().map(|url| crate::inbound_auth::JwksSource {
             url: url.clone(),
             min_interval: std::time::Duration::from_secs(self.jwks_min_interval_s),
+            max_age: std::time::Duration::from_secs(self.jwks_max_age_s.max(1)),
         });
         crate::inbound_auth::Verifier::new(&jwks, issuer, audience, source).map(Some)
     }

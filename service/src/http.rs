@@ -108,6 +108,18 @@ impl Application {
                 }
             });
         }
+        if let Some(max_age) = state.verifier.as_ref().and_then(|v| v.source()).map(|s| s.max_age) {
+            // Re-read the JWKS URL on a schedule, so that a key the issuer removed stops being trusted.
+            let jwks_state = state.clone();
+            tokio::spawn(async move {
+                loop {
+                    tokio::time::sleep(max_age).await;
+                    if let Some(v) = &jwks_state.verifier {
+                        v.reread(max_age / 2, "scheduled").await;
+                    }
+                }
+            });
+        }
         let data = web::Data::from(state.clone());
         let server = HttpServer::new(move || {
             App::new()

@@ -111,8 +111,10 @@ struct Claims {
 pub struct JwksSource {
     /// The JWKS URL.
     pub url: String,
-    /// Least time between two reads.
+    /// Least time between two reads on an unknown key id.
     pub min_interval: std::time::Duration,
+    /// Time after which the JWKS is read again regardless (so that a removed key stops being trusted).
+    pub max_age: std::time::Duration,
 }
 
 /// The configured verifier.
@@ -146,27 +148,44 @@ impl Verifier {
         })
     }
 
+    /// Where the JWKS is re-read from, when it came from a URL.
+    pub fn source(&self) -> Option<&JwksSource> {
+        self.source.as_ref()
+    }
+
+    /// Read the JWKS URL again and replace the keys (kept as they were when
+    /// the read fails). `min_gap`: skip when the last read is more recent.
+    /// True when the keys were replaced.
+    pub async fn reread(&self, min_gap: std::time::Duration, why: &'static str) -> bool {
+        let Some(source) = &self.source else { return false };
+        let mut last = self.last_read.lock().await;
+        if last.elapsed() < min_gap {
+            return false;
+        }
+        *last = std::time::Instant::now();
+        match fetch_jwks(&source.url).await.and_then(|text| parse_jwks(&text)) {
+            Ok(keys) => {
+                if let Ok(mut k) = self.keys.write() {
+                    *k = keys;
+                }
+                tracing::info!(why, "JWKS read again");
+                true
+            }
+            Err(e) => {
+                tracing::warn!(why, error = %e, "JWKS could not be read again; the keys read before stay");
+                false
+            }
+        }
+    }
+
     /// Check, and when the token names a key the JWKS lacks and the JWKS came
     /// from a URL, read it again (at most once per `min_interval`) and check once more.
     pub async fn check_refreshing(&self, authorization: Option<&str>, need: Option<Needed>) -> Result<(), Refusal> {
         match self.check(authorization, need) {
             Err(Refusal::Invalid(why)) if why == UNKNOWN_KID => {
                 let Some(source) = &self.source else { return Err(Refusal::Invalid(why)) };
-                {
-                    let mut last = self.last_read.lock().await;
-                    if last.elapsed() < source.min_interval {
-                        return Err(Refusal::Invalid(why));
-                    }
-                    *last = std::time::Instant::now();
-                    match fetch_jwks(&source.url).await.and_then(|text| parse_jwks(&text)) {
-                        Ok(keys) => {
-                            if let Ok(mut k) = self.keys.write() {
-                                *k = keys;
-                            }
-                            tracing::info!("JWKS read again for an unknown key id");
-                        }
-                        Err(e) => tracing::warn!(error = %e, "JWKS could not be read again"),
-                    }
+                if !self.reread(source.min_interval, "a token names an unknown key id").await {
+                    return Err(Refusal::Invalid(why));
                 }
                 self.check(authorization, need)
             }

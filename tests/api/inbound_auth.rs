@@ -250,3 +250,45 @@ async fn a_rotated_key_is_found_by_reading_the_jwks_url_again() {
     // Assert: served after one more read; a token with an unknown kid and no URL stays refused (above).
     assert_eq!(status, 200, "{body}");
 }
+
+#[tokio::test]
+async fn a_key_removed_from_the_jwks_url_stops_being_trusted_after_the_max_age() {
+    // Arrange: the JWKS has the key at start; afterwards the issuer removes it.
+    let key = generate_key(KID);
+    let other = generate_key("larkspur-test-signing-3");
+    let server = MockServer::start().await;
+    Mock::given(method("GET"))
+        .and(path("/.well-known/jwks.json"))
+        .respond_with(ResponseTemplate::new(200).set_body_json(json!({ "keys": [key.jwk] })))
+        .up_to_n_times(1)
+        .with_priority(1)
+        .mount(&server)
+        .await;
+    Mock::given(method("GET"))
+        .and(path("/.well-known/jwks.json"))
+        .respond_with(ResponseTemplate::new(200).set_body_json(json!({ "keys": [other.jwk] })))
+        .with_priority(2)
+        .mount(&server)
+        .await;
+    let auth = InboundAuthArgs {
+        jwks_file: None,
+        jwks_url: Some(format!("{}/.well-known/jwks.json", server.uri())),
+        jwks_max_age_s: 1,
+        ..auth_on(&key, false)
+    };
+    let app = spawn(auth).await;
+    let signed = token(&key, claims("system/GuidanceResponse.c"));
+    let (status, _, body) = post(&app, Some(&signed)).await;
+    assert_eq!(status, 200, "trusted at start: {body}");
+
+    // Act / Assert: after the scheduled re-read the same token is refused (bounded wait).
+    for _ in 0..100 {
+        let (status, challenge, _) = post(&app, Some(&signed)).await;
+        if status == 401 {
+            assert!(challenge.is_some_and(|c| c.contains("invalid_token")));
+            return;
+        }
+        tokio::time::sleep(std::time::Duration::from_millis(100)).await;
+    }
+    panic!("the removed key was still trusted 10 s after a 1 s max age");
+}
