@@ -135,6 +135,7 @@ impl Application {
                 .route("/livez", web::get().to(livez))
                 .route("/readyz", web::get().to(readyz))
                 .route("/metrics", web::get().to(metrics_text))
+                .configure(bench_routes)
                 .default_service(web::to(not_found))
         })
         .shutdown_timeout(settings.limits.shutdown_timeout_s)
@@ -483,6 +484,27 @@ async fn metrics_text(state: web::Data<AppState>) -> HttpResponse {
         spans: state.spans.as_ref().map(crate::otlp::Exporter::stats),
     });
     HttpResponse::Ok().content_type("text/plain; version=0.0.4; charset=utf-8").body(text)
+}
+
+/// Benchmark-only routes (feature `bench-echo`, never in a production build):
+/// `POST /bench/echo` parses the body to a `serde_json::Value` and writes it
+/// back, the floor `bench/load.sh` measures `$assess` against.
+fn bench_routes(cfg: &mut web::ServiceConfig) {
+    #[cfg(feature = "bench-echo")]
+    cfg.route("/bench/echo", web::post().to(bench_echo));
+    #[cfg(not(feature = "bench-echo"))]
+    let _ = cfg;
+}
+
+#[cfg(feature = "bench-echo")]
+async fn bench_echo(payload: web::Payload, state: web::Data<AppState>) -> HttpResponse {
+    match payload.to_bytes_limited(state.body_limit).await {
+        Ok(Ok(body)) => match serde_json::from_slice::<Value>(&body) {
+            Ok(v) => fhir_response(StatusCode::OK, &v),
+            Err(_) => HttpResponse::BadRequest().finish(),
+        },
+        _ => HttpResponse::PayloadTooLarge().finish(),
+    }
 }
 
 async fn livez() -> HttpResponse {

@@ -1009,4 +1009,33 @@ mod tests {
         assert!(a.finding.unwrap().preliminary);
         assert!(a.cautions.iter().any(|c| c.contains("preliminary")));
     }
+
+    mod properties {
+        use proptest::prelude::*;
+
+        use super::*;
+
+        proptest! {
+            /// Payne's adjustment rises with the calcium and falls as the albumin rises,
+            /// in both unit systems (slopes from the rule data are positive).
+            #[test]
+            fn payne_is_monotone_in_both_inputs(
+                ca_mg in 4.0f64..14.0, d_ca in 0.01f64..2.0,
+                alb_g_dl in 1.0f64..5.5, d_alb in 0.01f64..1.0,
+            ) {
+                let r = crate::clinical::testing::shared_rules();
+                let adj = |ca: &Measurement, alb: &Measurement| adjust(r, ca, alb).value_mmol_l;
+                // Conventional units (mg/dL, g/dL).
+                let base = adj(&total_mg(ca_mg, 1, "t"), &albumin_g_dl(alb_g_dl, 1, "a"));
+                prop_assert!(adj(&total_mg(ca_mg + d_ca, 1, "t"), &albumin_g_dl(alb_g_dl, 1, "a")) > base);
+                prop_assert!(adj(&total_mg(ca_mg, 1, "t"), &albumin_g_dl(alb_g_dl + d_alb, 1, "a")) < base);
+                // SI units (mmol/L, g/L).
+                let ca_mmol = ca_mg * 10.0 / 40.078;
+                let alb_si = |g_l: f64| m(Analyte::Albumin, g_l, "g/L", (g_l, "g/L"), 1, "a");
+                let base = adj(&total_mmol(ca_mmol, 1, "t"), &alb_si(alb_g_dl * 10.0));
+                prop_assert!(adj(&total_mmol(ca_mmol + d_ca / 4.0, 1, "t"), &alb_si(alb_g_dl * 10.0)) > base);
+                prop_assert!(adj(&total_mmol(ca_mmol, 1, "t"), &alb_si(alb_g_dl * 10.0 + d_alb * 10.0)) < base);
+            }
+        }
+    }
 }

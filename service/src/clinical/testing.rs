@@ -15,6 +15,12 @@ pub fn rules() -> RuleSet {
     crate::rules::load::load(None).unwrap().rules
 }
 
+/// The embedded rules, loaded once (for property tests that run many cases).
+pub fn shared_rules() -> &'static RuleSet {
+    static RULES: std::sync::LazyLock<RuleSet> = std::sync::LazyLock::new(rules);
+    &RULES
+}
+
 /// 2026-11-30T15:00:00Z.
 pub fn now() -> i64 {
     CivilDate::new(2026, 11, 30).unwrap().days_since_epoch() * 86_400 + 15 * HOUR

@@ -1126,4 +1126,36 @@ mod tests {
         assert!(c.text.contains("Central line only"));
         assert!(!p.issues.iter().any(|i| i.key == "extravasation"));
     }
+
+    mod properties {
+        use proptest::prelude::*;
+
+        use super::*;
+
+        proptest! {
+            #![proptest_config(ProptestConfig::with_cases(64))]
+            /// The bolus for a 7-year-old at plausible weights (z within the checks):
+            /// the dose is weight x the chosen mg/kg until the cap, never above the cap,
+            /// never falls as the weight rises, and volume x strength is the dose.
+            #[test]
+            fn bolus_dose_is_weight_times_rate_up_to_the_cap(kg in 15.0f64..50.0, more in 0.0f64..10.0) {
+                let r = shared_rules();
+                let b = &r.treatment.bolus;
+                let c = &b.chosen[1];
+                let d = r.dose_sources.iter().find(|x| x.id == c.dose_source).expect("the chosen dose source");
+                let cap = c.max_single.or(d.max_single).unwrap_or(f64::INFINITY);
+                let per_ml = r.products.iter().find(|p| p.id == b.product).and_then(|p| p.salt_mg).expect("strength");
+                let per_kg = if d.unit == "mL/kg" { pick(d, c.pick) * per_ml } else { pick(d, c.pick) };
+                let dose_at = |w: f64| find(&run(r, seven(), 0.85, Some(w)), "calcium-bolus").dose.as_ref().map(|q| q.value).expect("a dose");
+                let here = dose_at(kg);
+                prop_assert!((here - (kg * per_kg).min(cap)).abs() <= 0.05 + 1e-9, "{kg} kg: {here}");
+                prop_assert!(here <= cap + 1e-9);
+                let heavier = (kg + more).min(50.0);
+                prop_assert!(dose_at(heavier) + 1e-9 >= here, "the dose fell from {kg} to {heavier} kg");
+                let text = find(&run(r, seven(), 0.85, Some(kg)), "calcium-bolus").text.clone();
+                let ml: f64 = text.split(" mg = ").nth(1).and_then(|t| t.split(" mL").next()).and_then(|t| t.parse().ok()).expect("a volume");
+                prop_assert!((ml * per_ml - here).abs() <= 0.005 * per_ml + 0.05, "{ml} mL x {per_ml} mg/mL != {here} mg");
+            }
+        }
+    }
 }

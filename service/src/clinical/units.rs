@@ -302,4 +302,27 @@ mod tests {
             assert!(close(back, 7.3, 1e-9), "{unit}: {back}");
         }
     }
+
+    mod properties {
+        use proptest::prelude::*;
+
+        use super::super::*;
+
+        proptest! {
+            /// Every accepted unit of every analyte of the embedded rules: to the canonical
+            /// unit and back is the value again, and the conversion is linear.
+            #[test]
+            fn conversions_round_trip_and_are_linear(value in 1e-6f64..1e6, unit in 0..UNITS.len(), k in 0.5f64..4.0) {
+                let rules = crate::clinical::testing::shared_rules();
+                let code = UNITS[unit].code;
+                for rule in rules.analytes.values() {
+                    let Ok(canonical) = to_canonical(value, code, rule) else { continue };
+                    let back = from_canonical(canonical, code, rule).expect("the way back exists");
+                    prop_assert!((back - value).abs() <= 1e-9 * value, "{value} {code} -> {canonical} -> {back} ({})", rule.label);
+                    let scaled = to_canonical(k * value, code, rule).expect("the same unit converts");
+                    prop_assert!((scaled - k * canonical).abs() <= 1e-9 * scaled.abs(), "{code} is not linear for {}", rule.label);
+                }
+            }
+        }
+    }
 }

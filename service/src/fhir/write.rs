@@ -51,16 +51,18 @@ impl OutputContext<'_> {
         h.update(self.rules.sha256.as_bytes());
         h.update(kind.as_bytes());
         let d = h.finalize();
-        let hex: String = d.iter().take(16).map(|b| format!("{b:02x}")).collect();
+        let mut bytes = [0u8; 16];
+        bytes.copy_from_slice(&d[..16]);
         // Shape it as a UUID (version nibble 5, RFC 4122 variant) so that
         // urn:uuid fullUrls are well formed.
-        let hex = format!(
-            "{}5{}{:x}{}",
-            &hex[..12],
-            &hex[13..16],
-            (u8::from_str_radix(&hex[16..17], 16).unwrap_or(0) & 0x3) | 0x8,
-            &hex[17..]
-        );
+        bytes[6] = (bytes[6] & 0x0f) | 0x50;
+        bytes[8] = (bytes[8] & 0x3f) | 0x80;
+        const DIGITS: &[u8; 16] = b"0123456789abcdef";
+        let mut hex = String::with_capacity(32);
+        for b in bytes {
+            hex.push(char::from(DIGITS[usize::from(b >> 4)]));
+            hex.push(char::from(DIGITS[usize::from(b & 0x0f)]));
+        }
         format!("{}-{}-{}-{}-{}", &hex[..8], &hex[8..12], &hex[12..16], &hex[16..20], &hex[20..32])
     }
 }
