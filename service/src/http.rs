@@ -525,7 +525,7 @@ async fn not_found(req: HttpRequest) -> HttpResponse {
     let allowed = match path {
         "/fhir/$assess" | "/notifications" => Some("POST"),
         _ if patient_assess => Some("POST"),
-        "/fhir/metadata" | "/fhir/OperationDefinition/assess" | "/livez" | "/readyz" => Some("GET"),
+        "/fhir/metadata" | "/fhir/OperationDefinition/assess" | "/livez" | "/readyz" | "/metrics" => Some("GET"),
         _ => None,
     };
     if let Some(allow) = allowed {

@@ -98,6 +98,31 @@ async fn get_on_assess_names_the_allowed_method() {
     assert!(allow.split(',').any(|m| m.trim() == "POST"), "Allow: {allow:?}");
 }
 
+/// Every route answers a method it does not serve with 405 and its Allow
+/// (found by the schemathesis run: TRACE /metrics was a 404).
+#[tokio::test]
+async fn every_route_answers_an_undeclared_method_with_405_and_allow() {
+    let app = spawn_app().await;
+    let routes = [
+        ("/fhir/$assess", "POST"),
+        ("/fhir/Patient/lch-juniper-5/$assess", "POST"),
+        ("/notifications", "POST"),
+        ("/fhir/metadata", "GET"),
+        ("/fhir/OperationDefinition/assess", "GET"),
+        ("/livez", "GET"),
+        ("/readyz", "GET"),
+        ("/metrics", "GET"),
+    ];
+    for (path, allowed) in routes {
+        for method in [reqwest::Method::PUT, reqwest::Method::DELETE, reqwest::Method::PATCH] {
+            let response = app.client.request(method.clone(), format!("{}{path}", app.address)).send().await.unwrap();
+            assert_eq!(response.status().as_u16(), 405, "{method} {path}");
+            let allow = response.headers().get(reqwest::header::ALLOW).and_then(|v| v.to_str().ok()).map(str::to_owned);
+            assert_eq!(allow.as_deref(), Some(allowed), "{method} {path}");
+        }
+    }
+}
+
 #[tokio::test]
 async fn a_sent_request_id_is_echoed() {
     let app = spawn_app().await;

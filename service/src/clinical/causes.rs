@@ -337,11 +337,36 @@ fn egfr(rules: &RuleSet, facts: &Facts, ctx: &Context, readings: &Readings) -> O
 
 /// Evaluate every cause.
 pub fn evaluate(rules: &RuleSet, ctx: &Context, readings: &Readings, events: &[CodedEvent]) -> Vec<CauseResult> {
+    evaluate_with(rules, ctx, readings, events, Detail::Full)
+}
+
+/// Labels and scores only, without the texts and evidence of met findings: the
+/// planner weighs many hypothetical results and reads only the labels.
+pub fn evaluate_labels(rules: &RuleSet, ctx: &Context, readings: &Readings, events: &[CodedEvent]) -> Vec<CauseResult> {
+    evaluate_with(rules, ctx, readings, events, Detail::LabelsOnly)
+}
+
+/// How much of each result to build.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Detail {
+    /// Texts and evidence of every met finding.
+    Full,
+    /// Labels, scores and missing labs only.
+    LabelsOnly,
+}
+
+fn evaluate_with(
+    rules: &RuleSet,
+    ctx: &Context,
+    readings: &Readings,
+    events: &[CodedEvent],
+    detail: Detail,
+) -> Vec<CauseResult> {
     let mut results: Vec<CauseResult> = rules
         .causes
         .iter()
         .enumerate()
-        .map(|(i, cause)| evaluate_one(rules, ctx, readings, events, cause, i))
+        .map(|(i, cause)| evaluate_one(rules, ctx, readings, events, cause, i, detail))
         .collect();
     results.sort_by(|a, b| a.label.cmp(&b.label).then(b.score.cmp(&a.score)).then(a.rule_index.cmp(&b.rule_index)));
     results
@@ -365,6 +390,7 @@ fn evaluate_one(
     events: &[CodedEvent],
     cause: &Cause,
     rule_index: usize,
+    detail: Detail,
 ) -> CauseResult {
     let mut result = CauseResult {
         id: cause.id.clone(),
@@ -388,17 +414,26 @@ fn evaluate_one(
     let mut strong = false;
     let mut met_flags = Vec::with_capacity(cause.findings.len());
     for f in &cause.findings {
-        let outcome = check(rules, ctx, readings, events, f);
+        let outcome = check(rules, ctx, readings, events, f, detail);
         met_flags.push(matches!(outcome, Check::Met(..)));
         match outcome {
             Check::Met(text, evidence) => {
                 if f.effect == Effect::RulesOut {
-                    result.ruled_out_by = Some(format!("{text} ({})", f.source));
+                    result.ruled_out_by =
+                        Some(if detail == Detail::Full { format!("{text} ({})", f.source) } else { String::new() });
                 }
                 strong |= f.effect == Effect::StrongFor;
                 let p = points(rules, f.effect);
                 result.score += p;
-                result.met.push(MetFinding { text, effect: f.effect, points: p, source: f.source.clone(), evidence });
+                if detail == Detail::Full {
+                    result.met.push(MetFinding {
+                        text,
+                        effect: f.effect,
+                        points: p,
+                        source: f.source.clone(),
+                        evidence,
+                    });
+                }
             }
             Check::Missing(analyte) => {
                 if !result.missing.contains(&analyte) {
@@ -451,11 +486,22 @@ fn event_fits(e: &CodedEvent, list: &str, kind: EventKind, within_days: Option<f
     }
 }
 
-fn check(rules: &RuleSet, ctx: &Context, readings: &Readings, events: &[CodedEvent], f: &CauseFinding) -> Check {
+fn check(
+    rules: &RuleSet,
+    ctx: &Context,
+    readings: &Readings,
+    events: &[CodedEvent],
+    f: &CauseFinding,
+    detail: Detail,
+) -> Check {
+    let met = |text: &dyn Fn() -> String, evidence: &dyn Fn() -> Vec<Source>| match detail {
+        Detail::Full => Check::Met(text(), evidence()),
+        Detail::LabelsOnly => Check::Met(String::new(), Vec::new()),
+    };
     if let Some(analyte) = f.lab {
         let want = f.is.unwrap_or(LabOutcome::Normal);
         return match readings.labs.get(&analyte) {
-            Some(r) if want.matches(r.outcome) => Check::Met(r.text.clone(), r.sources.clone()),
+            Some(r) if want.matches(r.outcome) => met(&|| r.text.clone(), &|| r.sources.clone()),
             Some(_) => Check::NotMet,
             None => Check::Missing(analyte),
         };
@@ -463,17 +509,16 @@ fn check(rules: &RuleSet, ctx: &Context, readings: &Readings, events: &[CodedEve
     if f.egfr {
         let want = f.is.unwrap_or(LabOutcome::Low);
         return match &readings.egfr {
-            Some(r) if want.matches(r.outcome) => Check::Met(r.text.clone(), r.sources.clone()),
+            Some(r) if want.matches(r.outcome) => met(&|| r.text.clone(), &|| r.sources.clone()),
             Some(_) => Check::NotMet,
             None => Check::Missing(Analyte::Creatinine),
         };
     }
     if let Some(span) = &f.age {
         return match ctx.within(span) {
-            Some(true) => Check::Met(
-                format!("Age {} is within the span this finding covers.", ctx.age_min.describe()),
-                Vec::new(),
-            ),
+            Some(true) => {
+                met(&|| format!("Age {} is within the span this finding covers.", ctx.age_min.describe()), &Vec::new)
+            }
             _ => Check::NotMet,
         };
     }
@@ -487,6 +532,9 @@ fn check(rules: &RuleSet, ctx: &Context, readings: &Readings, events: &[CodedEve
         events.iter().filter(|e| event_fits(e, list, kind, f.within_days, &ctx.anchor)).collect();
     if hits.is_empty() {
         return Check::NotMet;
+    }
+    if detail == Detail::LabelsOnly {
+        return Check::Met(String::new(), Vec::new());
     }
     let label = rules.code_lists.iter().find(|c| &c.id == list).map_or(list.as_str(), |c| c.label.as_str());
     let what: Vec<String> = hits

@@ -95,7 +95,7 @@ pub fn plan(
         let mut after = Vec::new();
         for &outcome in &test.outcomes {
             let hypothetical = with_result(readings, test.analyte, outcome, height_known);
-            let results = causes::evaluate(rules, ctx, &hypothetical, events);
+            let results = causes::evaluate_labels(rules, ctx, &hypothetical, events);
             after.push((outcome, open_weight(rules, &results), results));
         }
         let mean = after.iter().map(|(_, w, _)| *w).sum::<f64>() / after.len() as f64;

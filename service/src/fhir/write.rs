@@ -134,7 +134,7 @@ pub fn result_bundle(
     if let Some(d) = &a.derived {
         let obs = derived_observation(ctx, d, &subject, &device, &now);
         targets.push(json!({ "reference": urn("adjusted-calcium"), "type": "Observation" }));
-        entries.push(json!({ "fullUrl": urn("adjusted-calcium"), "resource": obs }));
+        entries.push(entry(urn("adjusted-calcium"), obs));
     }
 
     // DetectedIssue for hypocalcemia.
@@ -161,50 +161,48 @@ pub fn result_bundle(
             "detail": issue_detail(ctx, f, a),
         });
         targets.push(json!({ "reference": urn("hypocalcemia"), "type": "DetectedIssue" }));
-        entries.push(json!({ "fullUrl": urn("hypocalcemia"), "resource": issue }));
+        entries.push(entry(urn("hypocalcemia"), issue));
     }
 
     // Work-up: causes and next tests.
-    let wo = match (workup, low) {
+    let mut wo = match (workup, low) {
         (Some(w), Some(f)) => Some(super::write_workup::workup_output(ctx, &subject, &device, &now, f, w)),
         _ => None,
     };
-    if let Some(wo) = &wo {
-        entries.extend(wo.entries.iter().cloned());
-        targets.extend(wo.targets.iter().cloned());
+    if let Some(wo) = &mut wo {
+        entries.append(&mut wo.entries);
+        targets.append(&mut wo.targets);
     }
     // Treatment proposals and safety issues.
     let calcium_ref = a.finding.as_ref().and_then(|f| f.evidence.first()).map(reference);
-    let to = treatment
+    let mut to = treatment
         .map(|t| super::write_treatment::treatment_output(ctx, &subject, &device, &now, calcium_ref.as_ref(), t));
-    if let Some(to) = &to {
-        entries.extend(to.entries.iter().cloned());
-        targets.extend(to.targets.iter().cloned());
+    if let Some(to) = &mut to {
+        entries.append(&mut to.entries);
+        targets.append(&mut to.targets);
     }
     // One RequestGroup orders every proposal: treatment first, then next tests.
     let mut actions: Vec<Value> = Vec::new();
-    if let Some(to) = &to {
-        actions.extend(to.actions.iter().cloned());
+    if let Some(to) = &mut to {
+        actions.append(&mut to.actions);
     }
-    if let Some(wo) = &wo {
-        actions.extend(wo.actions.iter().cloned());
+    if let Some(wo) = &mut wo {
+        actions.append(&mut wo.actions);
     }
     let plan_ref = (!actions.is_empty()).then(|| json!({ "reference": urn("plan"), "type": "RequestGroup" }));
     if plan_ref.is_some() {
-        entries.push(json!({
-            "fullUrl": urn("plan"),
-            "resource": {
-                "resourceType": "RequestGroup",
-                "id": id("plan"),
-                "status": "draft",
-                "intent": "proposal",
-                "subject": subject,
-                "authoredOn": now,
-                "author": device,
-                "action": actions,
-                "note": [{ "text": rules.texts.advisory }],
-            }
-        }));
+        let mut group = json!({
+            "resourceType": "RequestGroup",
+            "id": id("plan"),
+            "status": "draft",
+            "intent": "proposal",
+            "subject": subject,
+            "authoredOn": now,
+            "author": device,
+        });
+        group["action"] = Value::Array(actions);
+        group["note"] = json!([{ "text": rules.texts.advisory }]);
+        entries.push(entry(urn("plan"), group));
         targets.push(json!({ "reference": urn("plan"), "type": "RequestGroup" }));
     }
 
@@ -281,14 +279,14 @@ pub fn result_bundle(
         }
     }
     if !requirements.is_empty() {
-        gr["dataRequirement"] = json!(requirements);
+        gr["dataRequirement"] = Value::Array(requirements);
     }
     if let Some(r) = &plan_ref {
         gr["result"] = r.clone();
     }
     targets.insert(0, json!({ "reference": urn("guidance"), "type": "GuidanceResponse" }));
-    entries.insert(0, json!({ "fullUrl": urn("guidance"), "resource": gr }));
-    entries.push(json!({ "fullUrl": urn("outcome"), "resource": oo }));
+    entries.insert(0, entry(urn("guidance"), gr));
+    entries.push(entry(urn("outcome"), oo));
 
     // The service as a Device, and Provenance.
     entries.push(json!({
@@ -328,13 +326,23 @@ pub fn result_bundle(
         }
     }));
 
-    json!({
+    let mut bundle = json!({
         "resourceType": "Bundle",
         "id": id("bundle"),
         "type": "collection",
         "timestamp": now,
-        "entry": entries,
-    })
+    });
+    // Moved in, not copied: `json!` would serialise every entry into a new Value.
+    bundle["entry"] = Value::Array(entries);
+    bundle
+}
+
+/// A Bundle entry; the resource is moved in (a `json!` interpolation would copy it).
+pub fn entry(full_url: String, resource: Value) -> Value {
+    let mut m = serde_json::Map::with_capacity(2);
+    m.insert("fullUrl".into(), Value::String(full_url));
+    m.insert("resource".into(), resource);
+    Value::Object(m)
 }
 
 fn analyte_label(ctx: &OutputContext<'_>, analyte: Analyte) -> String {

@@ -5,7 +5,7 @@
 use serde_json::{Value, json};
 
 use super::read::UCUM;
-use super::write::{OutputContext, reference};
+use super::write::{OutputContext, entry, reference};
 use crate::clinical::treatment::{MedProposal, Route, TreatmentPlan};
 use crate::rules::treatment_model::SourcedCoding;
 
@@ -133,9 +133,7 @@ pub fn treatment_output(
     for p in &plan.proposals {
         let key = format!("medication-{}", p.key);
         out.targets.push(json!({ "reference": urn(&key), "type": "MedicationRequest" }));
-        out.entries.push(
-            json!({ "fullUrl": urn(&key), "resource": medication_request(ctx, p, subject, device, now, calcium) }),
-        );
+        out.entries.push(entry(urn(&key), medication_request(ctx, p, subject, device, now, calcium)));
         if p.alternative {
             continue;
         }
@@ -188,7 +186,7 @@ pub fn treatment_output(
             di["implicated"] = json!(implicated);
         }
         out.targets.push(json!({ "reference": urn(&key), "type": "DetectedIssue" }));
-        out.entries.push(json!({ "fullUrl": urn(&key), "resource": di }));
+        out.entries.push(entry(urn(&key), di));
         out.notes.push(format!("Safety ({}): {}", issue.severity.code(), issue.title));
     }
     out

@@ -4,7 +4,7 @@
 
 use serde_json::{Value, json};
 
-use super::write::{OutputContext, reference};
+use super::write::{OutputContext, entry, reference};
 use crate::clinical::causes::{CauseResult, analyte_label};
 use crate::clinical::facts::Source;
 use crate::clinical::status::CalciumFinding;
@@ -142,7 +142,7 @@ pub fn workup_output(
         ],
     });
     out.targets.push(json!({ "reference": urn("impression"), "type": "ClinicalImpression" }));
-    out.entries.push(json!({ "fullUrl": urn("impression"), "resource": impression }));
+    out.entries.push(entry(urn("impression"), impression));
     out.notes.push(summary);
 
     // Next tests.
@@ -179,7 +179,7 @@ pub fn workup_output(
             "resource": { "reference": urn(&key), "type": "ServiceRequest" },
         }));
         out.targets.push(json!({ "reference": urn(&key), "type": "ServiceRequest" }));
-        out.entries.push(json!({ "fullUrl": urn(&key), "resource": sr }));
+        out.entries.push(entry(urn(&key), sr));
     }
     for d in &w.plan.deferred {
         out.notes.push(format!("Held back: {}. {}", d.test.label, d.reason));
