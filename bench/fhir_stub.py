@@ -83,5 +83,13 @@ class Handler(BaseHTTPRequestHandler):
         self.send_json(200, {"resourceType": "Bundle", "type": "transaction-response", "entry": []})
 
 
+class Server(ThreadingHTTPServer):
+    # The default listen backlog (5) drops connections when the service opens
+    # many at once (7 calls per patient assessment on every connection); a
+    # dropped SYN is retried after 1 s and 3 s, past the service's call timeout.
+    request_queue_size = 1024
+    daemon_threads = True
+
+
 if __name__ == "__main__":
-    ThreadingHTTPServer(("127.0.0.1", PORT), Handler).serve_forever()
+    Server(("127.0.0.1", PORT), Handler).serve_forever()

@@ -3,7 +3,9 @@
 use std::io::Read;
 use std::process::ExitCode;
 
-use crate::config::{ArgSources, AssessArgs, Cli, Command, ConfigCommand, ServeArgs, load_rules};
+use crate::config::{
+    ArgSources, AssessArgs, CheckArgs, Cli, Command, ConfigCommand, RulesCommand, ServeArgs, load_rules,
+};
 use crate::engine::Engine;
 use crate::fhir::datetime;
 
@@ -18,6 +20,127 @@ pub fn run(cli: Cli, sources: &ArgSources) -> ExitCode {
         Command::Assess(args) => assess(&args),
         Command::Serve(args) => serve(&args),
         Command::Config(ConfigCommand::Check(args)) => config_check(&args, sources),
+        Command::Rules(cmd) => rules_command(&cmd),
+        Command::Check(args) => check_cases(&args),
+    }
+}
+
+/// Exit code of `check` when a case does not match its expectation.
+pub const EXIT_CASE_MISMATCH: u8 = 1;
+/// Exit code of `check` when the cases or the rules cannot be read.
+pub const EXIT_CASES_UNREADABLE: u8 = 2;
+
+fn check_cases(args: &CheckArgs) -> ExitCode {
+    let engine = match engine(args.rules.rules.as_ref()) {
+        Ok(e) => e,
+        Err(e) => {
+            eprintln!("calcium-cds: rules: {e}");
+            return ExitCode::from(EXIT_CASES_UNREADABLE);
+        }
+    };
+    let results = match crate::cases::run_dir(&engine, &args.dir) {
+        Ok(r) => r,
+        Err(e) => {
+            eprintln!("calcium-cds: {e}");
+            return ExitCode::from(EXIT_CASES_UNREADABLE);
+        }
+    };
+    println!("# rule set {}", engine.rules.label());
+    print!("{}", crate::cases::table(&results));
+    if let Some(path) = &args.junit {
+        let suite = format!("calcium-cds cases ({})", engine.rules.label());
+        if let Err(e) = std::fs::write(path, crate::cases::junit(&results, &suite)) {
+            eprintln!("calcium-cds: cannot write {}: {e}", path.display());
+            return ExitCode::from(EXIT_CASES_UNREADABLE);
+        }
+    }
+    if results.iter().all(crate::cases::CaseResult::passed) {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(EXIT_CASE_MISMATCH)
+    }
+}
+
+/// Exit code of `rules diff` when the rule sets differ (as diff(1) does).
+pub const EXIT_DIFFERENT: u8 = 1;
+/// Exit code of `rules diff` when a rule set cannot be read.
+pub const EXIT_DIFF_TROUBLE: u8 = 2;
+
+fn read_site(path: &std::path::Path) -> Result<(String, String), String> {
+    let text = std::fs::read_to_string(path).map_err(|e| format!("cannot read {}: {e}", path.display()))?;
+    Ok((path.display().to_string(), text))
+}
+
+fn rules_command(cmd: &RulesCommand) -> ExitCode {
+    use crate::rules::tools;
+    let fail = |code: u8, lines: &[String]| {
+        for l in lines {
+            eprintln!("{l}");
+        }
+        ExitCode::from(code)
+    };
+    match cmd {
+        RulesCommand::Check { file } => {
+            let (name, text) = match read_site(file) {
+                Ok(x) => x,
+                Err(e) => return fail(EXIT_CONFIG_ERROR, &[e]),
+            };
+            match tools::check_site(&name, &text) {
+                Ok(rules) => {
+                    println!("{name}: ok, rule set {}", rules.label());
+                    ExitCode::SUCCESS
+                }
+                Err(problems) => {
+                    let lines: Vec<String> = problems.iter().map(ToString::to_string).collect();
+                    fail(EXIT_CONFIG_ERROR, &lines)
+                }
+            }
+        }
+        RulesCommand::Show { rules } => {
+            let site = match rules.as_deref().map(read_site).transpose() {
+                Ok(s) => s,
+                Err(e) => return fail(EXIT_CONFIG_ERROR, &[e]),
+            };
+            match tools::show(site.as_ref().map(|(n, t)| (n.as_str(), t.as_str()))) {
+                Ok(lines) => {
+                    for (path, value, origin) in lines {
+                        let origin = if origin == tools::Origin::Site { "site" } else { "default" };
+                        println!("{path} = {value}  # {origin}");
+                    }
+                    ExitCode::SUCCESS
+                }
+                Err(problems) => {
+                    let lines: Vec<String> = problems.iter().map(ToString::to_string).collect();
+                    fail(EXIT_CONFIG_ERROR, &lines)
+                }
+            }
+        }
+        RulesCommand::Diff { a, b } => {
+            let doc = |which: &str| -> Result<serde_json::Value, String> {
+                if which == "default" {
+                    return tools::merged_document(None).map_err(|e| e.to_string());
+                }
+                let (name, text) = read_site(std::path::Path::new(which))?;
+                tools::check_site(&name, &text)
+                    .map_err(|p| p.iter().map(ToString::to_string).collect::<Vec<_>>().join("\n"))?;
+                tools::merged_document(Some((&name, &text))).map_err(|e| e.to_string())
+            };
+            let (da, db) = match (doc(a), doc(b)) {
+                (Ok(x), Ok(y)) => (x, y),
+                (Err(e), _) | (_, Err(e)) => return fail(EXIT_DIFF_TROUBLE, &[e]),
+            };
+            let changes = tools::diff(&da, &db);
+            for c in &changes {
+                println!("{c}");
+            }
+            if changes.is_empty() {
+                println!("# the rule sets are the same");
+                ExitCode::SUCCESS
+            } else {
+                println!("# {} difference(s)", changes.len());
+                ExitCode::from(EXIT_DIFFERENT)
+            }
+        }
     }
 }
 

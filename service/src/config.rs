@@ -29,6 +29,49 @@ pub enum Command {
     /// Configuration tools.
     #[command(subcommand)]
     Config(ConfigCommand),
+    /// Run a directory of cases (NAME.json with NAME.expect.toml) and compare each result with its expectation.
+    Check(CheckArgs),
+    /// Rule tools for informatics staff: check a site file, show the effective rules, compare two rule sets.
+    #[command(subcommand)]
+    Rules(RulesCommand),
+}
+
+/// `check` options.
+#[derive(Debug, Args)]
+pub struct CheckArgs {
+    /// Directory of cases.
+    pub dir: PathBuf,
+    /// Rules.
+    #[command(flatten)]
+    pub rules: RuleArgs,
+    /// Also write the results as JUnit XML to this file.
+    #[arg(long, value_name = "FILE")]
+    pub junit: Option<PathBuf>,
+}
+
+/// `rules` subcommands.
+#[derive(Debug, Subcommand)]
+pub enum RulesCommand {
+    /// Check a site rule file over the embedded defaults: schema and consistency
+    /// problems with file and line. Exit 0 when it loads, 1 otherwise.
+    Check {
+        /// The site rule file (TOML).
+        file: PathBuf,
+    },
+    /// Print the effective rules, one `path = value` line each, marked `default` or `site`.
+    Show {
+        /// Site rule file layered over the defaults (none: the defaults alone).
+        #[arg(long = "rules", value_name = "FILE")]
+        rules: Option<PathBuf>,
+    },
+    /// Compare two rule sets, each a site file over the defaults or the word `default`.
+    /// Exit 0 when they are the same, 1 when they differ, 2 when one cannot be read.
+    Diff {
+        /// The first rule set.
+        a: String,
+        /// The second rule set.
+        b: String,
+    },
 }
 
 /// `config` subcommands.

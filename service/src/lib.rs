@@ -6,6 +6,7 @@
 //! FHIR resources (`fhir::write`). Rules are data (`rules`). The adapters
 //! around the core are `http`, `cli`, `config` and `telemetry`.
 
+pub mod cases;
 pub mod cli;
 pub mod clinical;
 pub mod config;

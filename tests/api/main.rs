@@ -42,3 +42,6 @@ mod inbound_auth;
 
 // Trace export over OTLP/HTTP: span parentage, sampling, refusals, no patient data.
 mod otlp;
+
+// The rule tools and the case runner, as the binary: check DIR, rules check/show/diff.
+mod rule_tools;

@@ -90,6 +90,7 @@ fn medication_request(
     let mut mr = json!({
         "resourceType": "MedicationRequest",
         "id": ctx.uuid(&format!("medication-{}", p.key)),
+        "identifier": [{ "system": format!("{}/sid/treatment-proposal", ctx.canonical_base), "value": p.key }],
         "status": "draft",
         "intent": "proposal",
         "medicationCodeableConcept": { "coding": p.product.codes.iter().map(coding).collect::<Vec<_>>(), "text": p.product.label },
@@ -173,6 +174,8 @@ pub fn treatment_output(
         let mut di = json!({
             "resourceType": "DetectedIssue",
             "id": ctx.uuid(&key),
+            // The check's stable key (rule data), for case files and integrators.
+            "identifier": [{ "system": format!("{}/sid/safety-check", ctx.canonical_base), "value": issue.key }],
             "status": "preliminary",
             "code": code,
             "severity": issue.severity.code(),

@@ -161,6 +161,7 @@ pub fn workup_output(
         let mut sr = json!({
             "resourceType": "ServiceRequest",
             "id": ctx.uuid(&key),
+            "identifier": [{ "system": format!("{}/sid/next-test", ctx.canonical_base), "value": p.test.analyte.key() }],
             "status": "draft",
             "intent": "proposal",
             "code": code,

@@ -86,7 +86,7 @@ impl LoadedRules {
     }
 }
 
-fn parse_toml(file: &str, text: &str) -> Result<Value, RuleError> {
+pub(crate) fn parse_toml(file: &str, text: &str) -> Result<Value, RuleError> {
     let table: toml::Table =
         toml::from_str(text).map_err(|e| RuleError::Syntax { file: file.to_owned(), message: e.to_string() })?;
     serde_json::to_value(table).map_err(|e| RuleError::Syntax { file: file.to_owned(), message: e.to_string() })

@@ -3,6 +3,7 @@
 
 pub mod load;
 pub mod model;
+pub mod tools;
 pub mod treatment_model;
 
 pub use load::{LoadedRules, RuleError};
