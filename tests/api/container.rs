@@ -169,25 +169,10 @@ fn free_port() -> u16 {
 
 #[tokio::test(flavor = "multi_thread", worker_threads = 2)]
 async fn a_request_in_flight_at_sigterm_is_answered_before_the_process_exits() {
-    use wiremock::matchers::{method, path};
-    use wiremock::{Mock, MockServer};
-
-    use crate::upstream::{PATIENT_ID, fhir, ionized_calcium, mount_empty_other_searches, patient, searchset, weight};
+    use crate::upstream::PATIENT_ID;
 
     // Arrange: an EHR whose Observation search takes 1.5 s, and the binary pointed at it.
-    let ehr = MockServer::start().await;
-    Mock::given(method("GET"))
-        .and(path(format!("/Patient/{PATIENT_ID}")))
-        .respond_with(fhir(200, &patient()))
-        .mount(&ehr)
-        .await;
-    let labs = [ionized_calcium("ica-term-1", 0.95), weight("wt-term-1", 21.0)];
-    Mock::given(method("GET"))
-        .and(path("/Observation"))
-        .respond_with(fhir(200, &searchset(&ehr.uri(), &labs, None)).set_delay(Duration::from_millis(1500)))
-        .mount(&ehr)
-        .await;
-    mount_empty_other_searches(&ehr).await;
+    let ehr = crate::upstream::ehr_with_labs(Duration::from_millis(1500)).await;
     let port = free_port();
     let mut child = Running(
         Command::new(env!("CARGO_BIN_EXE_calcium-cds"))

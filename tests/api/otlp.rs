@@ -17,26 +17,13 @@ use wiremock::matchers::{method, path};
 use wiremock::{Mock, MockServer, Request, ResponseTemplate};
 
 use crate::helpers::{TestApp, default_settings, spawn_app_settings};
-use crate::upstream::{PATIENT_ID, fhir, ionized_calcium, mount_empty_other_searches, patient, searchset, weight};
+use crate::upstream::{PATIENT_ID, patient};
 
 const CALLER_TRACE: &str = "4bf92f3577b34da6a3ce929d0e0e4736";
 const CALLER_SPAN: &str = "00f067aa0ba902b7";
 
 async fn ehr() -> MockServer {
-    let server = MockServer::start().await;
-    Mock::given(method("GET"))
-        .and(path(format!("/Patient/{PATIENT_ID}")))
-        .respond_with(fhir(200, &patient()))
-        .mount(&server)
-        .await;
-    let labs = [ionized_calcium("ica-otlp-1", 0.95), weight("wt-otlp-1", 21.0)];
-    Mock::given(method("GET"))
-        .and(path("/Observation"))
-        .respond_with(fhir(200, &searchset(&server.uri(), &labs, None)))
-        .mount(&server)
-        .await;
-    mount_empty_other_searches(&server).await;
-    server
+    crate::upstream::ehr_with_labs(Duration::ZERO).await
 }
 
 async fn collector(status: u16) -> MockServer {

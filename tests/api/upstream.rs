@@ -194,6 +194,26 @@ async fn mock_ehr() -> MockServer {
     server
 }
 
+/// An EHR that answers any number of assessments of the patient: the Patient read, an
+/// Observation search with a low ionized calcium (0.95 mmol/L) and a weight (21 kg),
+/// answered after `delay`, and empty other searches.
+pub(crate) async fn ehr_with_labs(delay: Duration) -> MockServer {
+    let server = MockServer::start().await;
+    Mock::given(method("GET"))
+        .and(path(format!("/Patient/{PATIENT_ID}")))
+        .respond_with(fhir(200, &patient()))
+        .mount(&server)
+        .await;
+    let labs = [ionized_calcium("ica-any-1", 0.95), weight("wt-any-1", 21.0)];
+    Mock::given(method("GET"))
+        .and(path("/Observation"))
+        .respond_with(fhir(200, &searchset(&server.uri(), &labs, None)).set_delay(delay))
+        .mount(&server)
+        .await;
+    mount_empty_other_searches(&server).await;
+    server
+}
+
 pub(crate) fn args(server: &MockServer) -> UpstreamArgs {
     UpstreamArgs { fhir_base_url: Some(server.uri()), ..UpstreamArgs::default() }
 }
