@@ -100,3 +100,23 @@ fn rules_show_marks_site_values_and_rules_diff_lists_them() {
     let out = run(&["rules", "diff", "default", "default"]);
     assert!(out.status.success(), "{}", text(&out));
 }
+
+#[test]
+fn every_case_request_that_is_not_meant_to_be_refused_is_valid_r4() {
+    let dir = repo_path("tests/cases");
+    let mut checked = 0;
+    for entry in std::fs::read_dir(&dir).unwrap() {
+        let path = entry.unwrap().path();
+        let Some(name) = path.file_name().and_then(|n| n.to_str()).and_then(|n| n.strip_suffix(".expect.toml")) else {
+            continue;
+        };
+        if std::fs::read_to_string(&path).unwrap().lines().any(|l| l.starts_with("refused")) {
+            continue;
+        }
+        let request: serde_json::Value =
+            serde_json::from_str(&std::fs::read_to_string(dir.join(format!("{name}.json"))).unwrap()).unwrap();
+        crate::helpers::assert_r4_valid(&request);
+        checked += 1;
+    }
+    assert!(checked >= 12, "{checked}");
+}
