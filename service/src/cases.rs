@@ -14,6 +14,7 @@
 //! severity = "high"                     # hypocalcemia DetectedIssue severity, or "none"
 //! leading_cause = "vitamin_d_deficiency" # cause id (rules), first in the ClinicalImpression
 //! causes_ruled_out = ["..."]            # cause ids whose basis says ruled out
+//! causes_unlikely = ["..."]             # cause ids weighed unlikely
 //! proposed_tests = ["2731-8"]           # LOINC codes of the ServiceRequests (the exact set)
 //! proposals = ["calcium-bolus"]         # treatment proposal keys that must be present
 //! proposals_absent = ["calcium-oral"]
@@ -58,6 +59,9 @@ pub struct Expectation {
     /// Cause ids that must be ruled out.
     #[serde(default)]
     pub causes_ruled_out: Vec<String>,
+    /// Cause ids that must be weighed unlikely.
+    #[serde(default)]
+    pub causes_unlikely: Vec<String>,
     /// LOINC codes of the proposed ServiceRequests (the exact set).
     pub proposed_tests: Option<Vec<String>>,
     /// Treatment proposal keys that must be present.
@@ -203,10 +207,15 @@ pub fn run_case(engine: &Engine, name: String, request: &Path, expect: &Path) ->
     if let Some(id) = &exp.leading_cause {
         check("leading cause", label(id), view.causes.first().map_or_else(|| "(no causes)".into(), |c| c.0.clone()));
     }
-    for id in &exp.causes_ruled_out {
+    let wanted = exp
+        .causes_ruled_out
+        .iter()
+        .map(|id| (id, "ruled out"))
+        .chain(exp.causes_unlikely.iter().map(|id| (id, "unlikely")));
+    for (id, want) in wanted {
         let l = label(id);
         let got = view.causes.iter().find(|c| c.0 == l).map_or("(not listed)", |c| c.1.as_str());
-        check(&format!("cause {id}"), "ruled out".into(), got.to_owned());
+        check(&format!("cause {id}"), want.into(), got.to_owned());
     }
     if let Some(tests) = &exp.proposed_tests {
         let mut want = tests.clone();
