@@ -210,28 +210,31 @@ fn incomplete_auth_settings_are_refused_naming_the_setting() {
     assert!(err.contains("JWKS"), "{err}");
 }
 
+/// An issuer's JWKS URL that answers `first` on the first read and `then` on every
+/// later one; `reads` (when given) is how many reads of each wiremock must see.
+async fn jwks_server(first: Value, then: Value, reads: Option<u64>) -> MockServer {
+    let server = MockServer::start().await;
+    let jwks = || Mock::given(method("GET")).and(path("/.well-known/jwks.json"));
+    let mut at_start =
+        jwks().respond_with(ResponseTemplate::new(200).set_body_json(first)).up_to_n_times(1).with_priority(1);
+    let mut later = jwks().respond_with(ResponseTemplate::new(200).set_body_json(then)).with_priority(2);
+    if let Some(n) = reads {
+        at_start = at_start.expect(n);
+        later = later.expect(n);
+    }
+    at_start.mount(&server).await;
+    later.mount(&server).await;
+    server
+}
+
 #[tokio::test]
 async fn a_rotated_key_is_found_by_reading_the_jwks_url_again() {
     // Arrange: at start the JWKS has the old key; the issuer then adds a new one.
     let old_key = generate_key(KID);
     let mut new_key = generate_key("larkspur-test-signing-2");
     new_key.jwk["kid"] = json!("larkspur-test-signing-2");
-    let server = MockServer::start().await;
-    Mock::given(method("GET"))
-        .and(path("/.well-known/jwks.json"))
-        .respond_with(ResponseTemplate::new(200).set_body_json(json!({ "keys": [old_key.jwk] })))
-        .up_to_n_times(1)
-        .with_priority(1)
-        .expect(1)
-        .mount(&server)
-        .await;
-    Mock::given(method("GET"))
-        .and(path("/.well-known/jwks.json"))
-        .respond_with(ResponseTemplate::new(200).set_body_json(json!({ "keys": [old_key.jwk, new_key.jwk] })))
-        .with_priority(2)
-        .expect(1)
-        .mount(&server)
-        .await;
+    let server =
+        jwks_server(json!({ "keys": [old_key.jwk] }), json!({ "keys": [old_key.jwk, new_key.jwk] }), Some(1)).await;
     let auth = InboundAuthArgs {
         jwks_file: None,
         jwks_url: Some(format!("{}/.well-known/jwks.json", server.uri())),
@@ -256,20 +259,7 @@ async fn a_key_removed_from_the_jwks_url_stops_being_trusted_after_the_max_age()
     // Arrange: the JWKS has the key at start; afterwards the issuer removes it.
     let key = generate_key(KID);
     let other = generate_key("larkspur-test-signing-3");
-    let server = MockServer::start().await;
-    Mock::given(method("GET"))
-        .and(path("/.well-known/jwks.json"))
-        .respond_with(ResponseTemplate::new(200).set_body_json(json!({ "keys": [key.jwk] })))
-        .up_to_n_times(1)
-        .with_priority(1)
-        .mount(&server)
-        .await;
-    Mock::given(method("GET"))
-        .and(path("/.well-known/jwks.json"))
-        .respond_with(ResponseTemplate::new(200).set_body_json(json!({ "keys": [other.jwk] })))
-        .with_priority(2)
-        .mount(&server)
-        .await;
+    let server = jwks_server(json!({ "keys": [key.jwk] }), json!({ "keys": [other.jwk] }), None).await;
     let auth = InboundAuthArgs {
         jwks_file: None,
         jwks_url: Some(format!("{}/.well-known/jwks.json", server.uri())),

@@ -86,7 +86,7 @@ impl LoadedRules {
     }
 }
 
-pub(crate) fn parse_toml(file: &str, text: &str) -> Result<Value, RuleError> {
+fn parse_toml(file: &str, text: &str) -> Result<Value, RuleError> {
     let table: toml::Table =
         toml::from_str(text).map_err(|e| RuleError::Syntax { file: file.to_owned(), message: e.to_string() })?;
     serde_json::to_value(table).map_err(|e| RuleError::Syntax { file: file.to_owned(), message: e.to_string() })
@@ -130,20 +130,36 @@ pub fn merge(base: &mut Value, over: Value, path: &str) {
 
 /// Load the embedded defaults, plus a site file `(name, text)` if given.
 pub fn load(site: Option<(&str, &str)>) -> Result<LoadedRules, RuleError> {
+    from_document(merged_document(site, SiteName::Record)?)
+}
+
+/// Whether the merged document records the site file's name in `ruleset.site`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SiteName {
+    /// As loaded for use: `ruleset.site` is the file name unless the file sets it.
+    Record,
+    /// As the file says, for showing and comparing rule sets value by value.
+    AsWritten,
+}
+
+/// The embedded defaults merged in order, then the site file over them (unchecked).
+pub fn merged_document(site: Option<(&str, &str)>, name: SiteName) -> Result<Value, RuleError> {
     let mut doc = Value::Object(serde_json::Map::new());
-    for (name, text) in DEFAULT_FILES {
-        merge(&mut doc, parse_toml(name, text)?, "");
+    for (file, text) in DEFAULT_FILES {
+        merge(&mut doc, parse_toml(file, text)?, "");
     }
-    if let Some((name, text)) = site {
-        let mut over = parse_toml(name, text)?;
-        if let Some(rs) = over.get_mut("ruleset").and_then(Value::as_object_mut) {
-            rs.entry("site").or_insert_with(|| Value::String(name.to_owned()));
-        } else if let Some(obj) = over.as_object_mut() {
-            obj.insert("ruleset".into(), serde_json::json!({ "site": name }));
+    if let Some((file, text)) = site {
+        let mut over = parse_toml(file, text)?;
+        if name == SiteName::Record {
+            if let Some(rs) = over.get_mut("ruleset").and_then(Value::as_object_mut) {
+                rs.entry("site").or_insert_with(|| Value::String(file.to_owned()));
+            } else if let Some(obj) = over.as_object_mut() {
+                obj.insert("ruleset".into(), serde_json::json!({ "site": file }));
+            }
         }
         merge(&mut doc, over, "");
     }
-    from_document(doc)
+    Ok(doc)
 }
 
 /// Check and type a merged rule document.

@@ -122,16 +122,9 @@ fn names(line: &str, seg: &str) -> bool {
     l.split_once('=').is_some_and(|(k, _)| k.trim().trim_matches('"') == seg)
 }
 
-/// The merged rule document (defaults, plus `site` when given), unchecked.
+/// The merged rule document (defaults, plus `site` when given, as written), unchecked.
 pub fn merged_document(site: Option<(&str, &str)>) -> Result<Value, RuleError> {
-    let mut doc = Value::Object(serde_json::Map::new());
-    for (name, text) in load::DEFAULT_FILES {
-        load::merge(&mut doc, load::parse_toml(name, text)?, "");
-    }
-    if let Some((name, text)) = site {
-        load::merge(&mut doc, load::parse_toml(name, text)?, "");
-    }
-    Ok(doc)
+    load::merged_document(site, load::SiteName::AsWritten)
 }
 
 /// One line per value: path to the value's JSON text.
