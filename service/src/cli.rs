@@ -1,6 +1,21 @@
 //! The command line: `assess FILE|-` and `serve`.
 
-use std::io::Read;
+use std::io::{Read, Write as _};
+
+/// Print a line on standard output. A closed pipe (`calcium-cds rules show | head`)
+/// is not an error worth a panic: the write fails quietly and the command ends as usual.
+macro_rules! out {
+    ($($arg:tt)*) => {{
+        let _ = writeln!(std::io::stdout().lock(), $($arg)*);
+    }};
+}
+
+/// Print on standard output without a newline (see `out!`).
+macro_rules! out_raw {
+    ($($arg:tt)*) => {{
+        let _ = write!(std::io::stdout().lock(), $($arg)*);
+    }};
+}
 use std::process::ExitCode;
 
 use crate::config::{
@@ -45,8 +60,8 @@ fn check_cases(args: &CheckArgs) -> ExitCode {
             return ExitCode::from(EXIT_CASES_UNREADABLE);
         }
     };
-    println!("# rule set {}", engine.rules.label());
-    print!("{}", crate::cases::table(&results));
+    out!("# rule set {}", engine.rules.label());
+    out_raw!("{}", crate::cases::table(&results));
     if let Some(path) = &args.junit {
         let suite = format!("calcium-cds cases ({})", engine.rules.label());
         if let Err(e) = std::fs::write(path, crate::cases::junit(&results, &suite)) {
@@ -87,7 +102,7 @@ fn rules_command(cmd: &RulesCommand) -> ExitCode {
             };
             match tools::check_site(&name, &text) {
                 Ok(rules) => {
-                    println!("{name}: ok, rule set {}", rules.label());
+                    out!("{name}: ok, rule set {}", rules.label());
                     ExitCode::SUCCESS
                 }
                 Err(problems) => {
@@ -105,7 +120,7 @@ fn rules_command(cmd: &RulesCommand) -> ExitCode {
                 Ok(lines) => {
                     for (path, value, origin) in lines {
                         let origin = if origin == tools::Origin::Site { "site" } else { "default" };
-                        println!("{path} = {value}  # {origin}");
+                        out!("{path} = {value}  # {origin}");
                     }
                     ExitCode::SUCCESS
                 }
@@ -131,13 +146,13 @@ fn rules_command(cmd: &RulesCommand) -> ExitCode {
             };
             let changes = tools::diff(&da, &db);
             for c in &changes {
-                println!("{c}");
+                out!("{c}");
             }
             if changes.is_empty() {
-                println!("# the rule sets are the same");
+                out!("# the rule sets are the same");
                 ExitCode::SUCCESS
             } else {
-                println!("# {} difference(s)", changes.len());
+                out!("# {} difference(s)", changes.len());
                 ExitCode::from(EXIT_DIFFERENT)
             }
         }
@@ -159,13 +174,13 @@ fn config_check(args: &ServeArgs, sources: &ArgSources) -> ExitCode {
         problems.push(format!("upstream: {e}"));
     }
     problems.extend(args.cross_checks());
-    println!("# calcium-cds {} effective configuration", crate::engine::VERSION);
-    println!("{}", sources.render());
+    out!("# calcium-cds {} effective configuration", crate::engine::VERSION);
+    out!("{}", sources.render());
     if !rules.is_empty() {
-        println!("# rule set: {rules}");
+        out!("# rule set: {rules}");
     }
     if problems.is_empty() {
-        println!("# ok: the service would start with this configuration");
+        out!("# ok: the service would start with this configuration");
         ExitCode::SUCCESS
     } else {
         for p in &problems {
@@ -214,11 +229,11 @@ fn assess(args: &AssessArgs) -> ExitCode {
     }
     match engine.assess(&body, now, fixed) {
         Ok(outcome) => {
-            println!("{}", serde_json::to_string_pretty(&outcome.bundle).unwrap_or_default());
+            out!("{}", serde_json::to_string_pretty(&outcome.bundle).unwrap_or_default());
             ExitCode::SUCCESS
         }
         Err(err) => {
-            println!("{}", serde_json::to_string_pretty(&err.to_operation_outcome()).unwrap_or_default());
+            out!("{}", serde_json::to_string_pretty(&err.to_operation_outcome()).unwrap_or_default());
             eprintln!("calcium-cds: request refused ({err})");
             ExitCode::from(EXIT_REQUEST_ERROR)
         }

@@ -120,3 +120,22 @@ fn every_case_request_that_is_not_meant_to_be_refused_is_valid_r4() {
     }
     assert!(checked >= 12, "{checked}");
 }
+
+#[test]
+fn a_reader_that_closes_the_pipe_early_does_not_make_the_binary_panic() {
+    // `calcium-cds rules show | head -1`: stdout closes after the first line.
+    use std::io::Read;
+    let mut child = Command::new(BIN)
+        .args(["rules", "show"])
+        .env_remove("CALCIUM_CDS_RULES")
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .expect("the binary runs");
+    let mut first = [0u8; 64];
+    child.stdout.take().expect("stdout").read_exact(&mut first).expect("the first bytes");
+    let out = child.wait_with_output().expect("it ends");
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(!err.contains("panicked"), "{err}");
+    assert!(out.status.success(), "{:?} {err}", out.status);
+}
