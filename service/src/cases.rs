@@ -20,6 +20,10 @@
 //! proposals_absent = ["calcium-oral"]
 //! safety_present = ["bradycardia"]      # safety check keys (DetectedIssue identifiers)
 //! safety_absent = ["digoxin"]
+//! hypocalcemia = true                   # a hypocalcemia DetectedIssue is (or is not) raised
+//! tests_proposed = true                 # at least one next test is (or no test is) proposed
+//! adjusted_calcium = true               # an albumin-adjusted calcium Observation is (or is not) computed
+//! set_aside = [".valueQuantity.code"]   # each: the end of the element of an input set aside with a warning
 //! [doses.calcium-bolus]                 # dose per administration within [min, max]
 //! min = 700.0
 //! max = 800.0
@@ -76,6 +80,15 @@ pub struct Expectation {
     /// Safety check keys that must not be raised.
     #[serde(default)]
     pub safety_absent: Vec<String>,
+    /// A hypocalcemia DetectedIssue is raised (true) or not (false).
+    pub hypocalcemia: Option<bool>,
+    /// At least one next test is proposed (true) or none is (false).
+    pub tests_proposed: Option<bool>,
+    /// An albumin-adjusted calcium is computed (true) or not (false).
+    pub adjusted_calcium: Option<bool>,
+    /// Element endings of inputs that must be set aside with a warning.
+    #[serde(default)]
+    pub set_aside: Vec<String>,
     /// Dose ranges by proposal key.
     #[serde(default)]
     pub doses: BTreeMap<String, DoseRange>,
@@ -164,10 +177,15 @@ pub fn run_case(engine: &Engine, name: String, request: &Path, expect: &Path) ->
         Ok(b) => b,
         Err(e) => return broken(name, format!("{}: {e}", request.display())),
     };
+    compare(engine, name, &body, &exp)
+}
+
+/// Assess a request and compare the result with an expectation.
+pub fn compare(engine: &Engine, name: String, body: &[u8], exp: &Expectation) -> CaseResult {
     let Ok(now) = crate::fhir::datetime::parse_date_time(&exp.now).map(|d| d.when.earliest) else {
         return broken(name, format!("now '{}' is not a dateTime", exp.now));
     };
-    let result = engine.assess(&body, now, true);
+    let result = engine.assess(body, now, true);
     let mut checks = Vec::new();
     let mut check = |what: &str, expected: String, got: String| {
         let pass = expected == got;
@@ -188,7 +206,7 @@ pub fn run_case(engine: &Engine, name: String, request: &Path, expect: &Path) ->
         }
         (Ok(o), None) => &o.bundle,
     };
-    let view = View::of(bundle, &engine.canonical_base);
+    let view = View::of(bundle, &engine.canonical_base, &engine.rules.rules.output_codes.adjusted_calcium.code);
     if let Some(s) = &exp.status {
         check("status", s.clone(), view.status.clone());
     }
@@ -237,6 +255,24 @@ pub fn run_case(engine: &Engine, name: String, request: &Path, expect: &Path) ->
     for key in &exp.safety_absent {
         check(&format!("safety {key}"), "absent".into(), present(view.safety.contains(key)));
     }
+    let yes_no = |b: bool| if b { "yes" } else { "no" }.to_owned();
+    if let Some(want) = exp.hypocalcemia {
+        check("hypocalcemia", yes_no(want), yes_no(view.severity.is_some()));
+    }
+    if let Some(want) = exp.tests_proposed {
+        check("tests proposed", yes_no(want), yes_no(!view.tests.is_empty()));
+    }
+    if let Some(want) = exp.adjusted_calcium {
+        check("adjusted calcium", yes_no(want), yes_no(view.adjusted));
+    }
+    for ending in &exp.set_aside {
+        let got = view.set_aside.iter().find(|e| e.ends_with(ending.as_str()));
+        check(
+            &format!("set aside {ending}"),
+            "set aside with a warning".into(),
+            got.map_or_else(|| "(not set aside)".to_owned(), |_| "set aside with a warning".to_owned()),
+        );
+    }
     for (key, range) in &exp.doses {
         let want = format!(
             "{} to {}",
@@ -271,6 +307,10 @@ struct View {
     doses: BTreeMap<String, Option<(f64, String)>>,
     /// Safety check keys raised.
     safety: Vec<String>,
+    /// An albumin-adjusted calcium Observation was computed.
+    adjusted: bool,
+    /// Elements of inputs set aside with a warning or an error.
+    set_aside: Vec<String>,
 }
 
 fn identifier(r: &Value, system: &str) -> Option<String> {
@@ -278,7 +318,7 @@ fn identifier(r: &Value, system: &str) -> Option<String> {
 }
 
 impl View {
-    fn of(bundle: &Value, canonical_base: &str) -> Self {
+    fn of(bundle: &Value, canonical_base: &str, adjusted_code: &str) -> Self {
         let mut v = Self::default();
         let (safety_sid, proposal_sid) =
             (format!("{canonical_base}{SAFETY_SID}"), format!("{canonical_base}{PROPOSAL_SID}"));
@@ -303,6 +343,18 @@ impl View {
                             .find(|w| basis.starts_with(w))
                             .unwrap_or("?");
                         v.causes.push((name, label.to_owned()));
+                    }
+                }
+                Some("Observation") => {
+                    v.adjusted |=
+                        r["code"]["coding"].as_array().into_iter().flatten().any(|c| c["code"] == adjusted_code);
+                }
+                Some("OperationOutcome") => {
+                    for i in r["issue"].as_array().into_iter().flatten() {
+                        if matches!(i["severity"].as_str(), Some("warning" | "error" | "fatal")) {
+                            let elements = i["expression"].as_array().into_iter().flatten();
+                            v.set_aside.extend(elements.filter_map(|e| e.as_str().map(str::to_owned)));
+                        }
                     }
                 }
                 Some("ServiceRequest") => v.tests.extend(

@@ -19,7 +19,7 @@ macro_rules! out_raw {
 use std::process::ExitCode;
 
 use crate::config::{
-    ArgSources, AssessArgs, CheckArgs, Cli, Command, ConfigCommand, RulesCommand, ServeArgs, load_rules,
+    ArgSources, AssessArgs, CheckArgs, Cli, Command, ConfigCommand, RulesCommand, ServeArgs, SynthArgs, load_rules,
 };
 use crate::engine::Engine;
 use crate::fhir::datetime;
@@ -37,7 +37,94 @@ pub fn run(cli: Cli, sources: &ArgSources) -> ExitCode {
         Command::Config(ConfigCommand::Check(args)) => config_check(&args, sources),
         Command::Rules(cmd) => rules_command(&cmd),
         Command::Check(args) => check_cases(&args),
+        Command::Synth(args) => synth(&args),
     }
+}
+
+fn unix_now() -> i64 {
+    std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs() as i64).unwrap_or(0)
+}
+
+/// Parse `--now`, or take the system clock.
+fn clock(now: Option<&String>) -> Result<(i64, bool), ExitCode> {
+    match now {
+        Some(text) => match datetime::parse_date_time(text) {
+            Ok(t) if t.date_only.is_none() => Ok((t.when.latest, true)),
+            _ => {
+                eprintln!(
+                    "calcium-cds: --now must be an RFC 3339 date-time with seconds and an offset, e.g. 2026-11-30T15:00:00Z"
+                );
+                Err(ExitCode::from(EXIT_CONFIG_ERROR))
+            }
+        },
+        None => Ok((unix_now(), false)),
+    }
+}
+
+fn synth(args: &SynthArgs) -> ExitCode {
+    use crate::synth;
+    let cat = match synth::Catalogue::embedded() {
+        Ok(c) => c,
+        Err(e) => {
+            eprintln!("calcium-cds: {e}");
+            return ExitCode::from(EXIT_CONFIG_ERROR);
+        }
+    };
+    if args.list {
+        out_raw!("{}", synth::list_text(&cat));
+        return ExitCode::SUCCESS;
+    }
+    let (now, _) = match clock(args.now.as_ref()) {
+        Ok(c) => c,
+        Err(code) => return code,
+    };
+    let fail = |msg: String| {
+        eprintln!("calcium-cds: synth: {msg}");
+        ExitCode::from(EXIT_CONFIG_ERROR)
+    };
+    let engine = match engine(args.rules.rules.as_ref()) {
+        Ok(e) => e,
+        Err(e) => return fail(e),
+    };
+    let (Some(scenario), Some(age_text)) = (&args.scenario, &args.age) else {
+        return fail("--scenario and --age are needed (or --list)".into());
+    };
+    let age_days = match synth::parse_age(age_text) {
+        Ok(d) => d,
+        Err(e) => return fail(e.0),
+    };
+    let sex = match args.sex.as_deref().map(synth::Sex::parse).transpose() {
+        Ok(s) => s,
+        Err(e) => return fail(e.0),
+    };
+    if args.count > 1 && args.out.is_none() {
+        return fail("--count above 1 needs --out DIR".into());
+    }
+    if let Some(dir) = &args.out
+        && let Err(e) = std::fs::create_dir_all(dir)
+    {
+        return fail(format!("cannot create {}: {e}", dir.display()));
+    }
+    for i in 0..u64::from(args.count) {
+        let seed = args.seed.wrapping_add(i);
+        let req = synth::Request { scenario: scenario.clone(), age_days, sex, seed, now };
+        let bundle = match synth::make(&engine.rules.rules, &cat, &req) {
+            Ok(b) => b,
+            Err(e) => return fail(e.0),
+        };
+        let text = serde_json::to_string_pretty(&bundle).unwrap_or_default();
+        match &args.out {
+            None => out!("{text}"),
+            Some(dir) => {
+                let path = dir.join(format!("{scenario}-{age_text}-seed{seed}.json"));
+                if let Err(e) = std::fs::write(&path, format!("{text}\n")) {
+                    return fail(format!("cannot write {}: {e}", path.display()));
+                }
+                out!("{}", path.display());
+            }
+        }
+    }
+    ExitCode::SUCCESS
 }
 
 /// Exit code of `check` when a case does not match its expectation.
@@ -195,20 +282,9 @@ fn engine(site: Option<&std::path::PathBuf>) -> Result<Engine, String> {
 }
 
 fn assess(args: &AssessArgs) -> ExitCode {
-    let (now, fixed) = match &args.now {
-        Some(text) => match datetime::parse_date_time(text) {
-            Ok(t) if t.date_only.is_none() => (t.when.latest, true),
-            _ => {
-                eprintln!(
-                    "calcium-cds: --now must be an RFC 3339 date-time with seconds and an offset, e.g. 2026-11-30T15:00:00Z"
-                );
-                return ExitCode::from(EXIT_CONFIG_ERROR);
-            }
-        },
-        None => (
-            std::time::SystemTime::now().duration_since(std::time::UNIX_EPOCH).map(|d| d.as_secs() as i64).unwrap_or(0),
-            false,
-        ),
+    let (now, fixed) = match clock(args.now.as_ref()) {
+        Ok(c) => c,
+        Err(code) => return code,
     };
     let engine = match engine(args.rules.rules.as_ref()) {
         Ok(e) => e,

@@ -34,6 +34,40 @@ pub enum Command {
     /// Rule tools for informatics staff: check a site file, show the effective rules, compare two rule sets.
     #[command(subcommand)]
     Rules(RulesCommand),
+    /// Make synthetic request bundles for a named scenario (invented patients), or list the scenarios.
+    Synth(SynthArgs),
+}
+
+/// `synth` options.
+#[derive(Debug, Args)]
+pub struct SynthArgs {
+    /// List the scenarios and stop.
+    #[arg(long)]
+    pub list: bool,
+    /// Scenario name (see --list).
+    #[arg(long, required_unless_present = "list")]
+    pub scenario: Option<String>,
+    /// Age of the child: 3d, 6w, 18mo, 7y.
+    #[arg(long, required_unless_present = "list")]
+    pub age: Option<String>,
+    /// female or male (default: drawn from the seed).
+    #[arg(long)]
+    pub sex: Option<String>,
+    /// Seed: the same seed gives the same bundle.
+    #[arg(long, default_value_t = 1)]
+    pub seed: u64,
+    /// How many bundles (seeds seed, seed+1, ...); more than one needs --out.
+    #[arg(long, default_value_t = 1)]
+    pub count: u32,
+    /// Write NAME-AGE-seedN.json files into this directory instead of printing.
+    #[arg(long, value_name = "DIR")]
+    pub out: Option<PathBuf>,
+    /// The clock the bundles are dated against (RFC 3339; default: now).
+    #[arg(long)]
+    pub now: Option<String>,
+    /// Rules (codes, bands and ranges are read from them).
+    #[command(flatten)]
+    pub rules: RuleArgs,
 }
 
 /// `check` options.

@@ -19,6 +19,7 @@ pub mod notify;
 pub mod otlp;
 pub mod rules;
 pub mod smart;
+pub mod synth;
 pub mod telemetry;
 pub mod trace;
 pub mod upstream;

@@ -45,3 +45,6 @@ mod otlp;
 
 // The rule tools and the case runner, as the binary: check DIR, rules check/show/diff.
 mod rule_tools;
+
+// Synthetic bundles (issue 8).
+mod synth;

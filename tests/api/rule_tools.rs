@@ -46,6 +46,23 @@ fn the_shipped_case_set_passes_with_the_default_rules_and_writes_junit() {
 }
 
 #[test]
+fn the_site_case_set_passes_with_the_larkspur_site_file_and_fails_without_it() {
+    // tests/cases-site: a local 1,25-dihydroxyvitamin D code and saline as the bolus
+    // diluent (tests/cases-site/README.md). With the site file every case passes; with
+    // the defaults alone the vitamin D-dependent rickets cases and the saline notice fail.
+    let dir = repo_path("tests/cases-site");
+    let site = dir.join("site-rules.toml");
+    let out = run(&["check", dir.to_str().unwrap(), "--rules", site.to_str().unwrap()]);
+    assert!(out.status.success(), "{}", text(&out));
+    let out = run(&["check", dir.to_str().unwrap()]);
+    assert_eq!(out.status.code(), Some(1), "{}", text(&out));
+    let t = text(&out);
+    for case in ["vddr-type1-leads", "vddr-type2-leads", "safety-saline-diluent"] {
+        assert!(t.lines().any(|l| l.contains(case) && l.contains("FAIL")), "{case}: {t}");
+    }
+}
+
+#[test]
 fn a_changed_threshold_fails_exactly_the_cases_it_changes() {
     // 7.6 + 1.2 x (4.0 - 2.6) = 9.28 mg/dL = 2.32 mmol/L: within the child band's 2.20-2.70,
     // so the 7-year-old with total calcium 7.6 mg/dL is no longer hypocalcemic. The SI cases
@@ -103,22 +120,24 @@ fn rules_show_marks_site_values_and_rules_diff_lists_them() {
 
 #[test]
 fn every_case_request_that_is_not_meant_to_be_refused_is_valid_r4() {
-    let dir = repo_path("tests/cases");
     let mut checked = 0;
-    for entry in std::fs::read_dir(&dir).unwrap() {
-        let path = entry.unwrap().path();
-        let Some(name) = path.file_name().and_then(|n| n.to_str()).and_then(|n| n.strip_suffix(".expect.toml")) else {
-            continue;
-        };
-        if std::fs::read_to_string(&path).unwrap().lines().any(|l| l.starts_with("refused")) {
-            continue;
+    for dir in [repo_path("tests/cases"), repo_path("tests/cases-site")] {
+        for entry in std::fs::read_dir(&dir).unwrap() {
+            let path = entry.unwrap().path();
+            let Some(name) = path.file_name().and_then(|n| n.to_str()).and_then(|n| n.strip_suffix(".expect.toml"))
+            else {
+                continue;
+            };
+            if std::fs::read_to_string(&path).unwrap().lines().any(|l| l.starts_with("refused")) {
+                continue;
+            }
+            let request: serde_json::Value =
+                serde_json::from_str(&std::fs::read_to_string(dir.join(format!("{name}.json"))).unwrap()).unwrap();
+            crate::helpers::assert_r4_valid(&request);
+            checked += 1;
         }
-        let request: serde_json::Value =
-            serde_json::from_str(&std::fs::read_to_string(dir.join(format!("{name}.json"))).unwrap()).unwrap();
-        crate::helpers::assert_r4_valid(&request);
-        checked += 1;
     }
-    assert!(checked >= 12, "{checked}");
+    assert!(checked >= 80, "{checked}");
 }
 
 #[test]

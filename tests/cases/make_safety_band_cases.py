@@ -1,0 +1,762 @@
+#!/usr/bin/env python3
+"""Write the safety-check cases and the age-band cases of tests/cases, and the
+site cases of tests/cases-site.
+
+Each case is a child at the invented Larkspur Children's Hospital, written out
+as a FHIR R4 request (a Bundle, or a Parameters wrapper when the vascular
+access must be stated) with its expectation file. The expectation text, with
+the hand-worked arithmetic in its comments, is in this script beside the
+patient it belongs to, so a reviewer reads the data and the expectation
+together. Codes are taken from the rule data as written below (LOINC,
+SNOMED CT, ATC from service/rules/codes.toml and cause-codes.toml); the site
+cases also use the site's local 1,25-dihydroxyvitamin D code
+(tests/cases-site/site-rules.toml).
+
+The evaluation clock of every case is 2026-11-30T15:00:00Z (10:00 at the
+hospital, UTC-05:00). Results are stamped in local time.
+
+Run from the repository root: python3 tests/cases/make_safety_band_cases.py
+"""
+import json
+import pathlib
+import uuid
+
+ROOT = pathlib.Path(__file__).resolve().parents[2]
+CASES = ROOT / "tests" / "cases"
+SITE = ROOT / "tests" / "cases-site"
+NOW = "2026-11-30T15:00:00Z"
+UCUM = "http://unitsofmeasure.org"
+LOINC = "http://loinc.org"
+SCT = "http://snomed.info/sct"
+ATC = "http://www.whocc.no/atc"
+MRN = "https://larkspur-childrens.example.org/fhir/sid/mrn"
+LOCAL_LAB = "https://larkspur.example.org/fhir/CodeSystem/lab"
+NS = uuid.UUID("2b7d4c91-5e3a-4f08-9c6d-71a0e2f4b8c3")
+
+# LOINC code, display, unit for each lab used here (service/rules/codes.toml).
+LAB = {
+    "ica": ("1994-3", "Calcium.ionized [Moles/volume] in Blood", "Ionized calcium (whole blood)", "mmol/L"),
+    "tca_mg": ("17861-6", "Calcium [Mass/volume] in Serum or Plasma", "Calcium, total", "mg/dL"),
+    "tca": ("2000-8", "Calcium [Moles/volume] in Serum or Plasma", "Calcium, total", "mmol/L"),
+    "phos": ("14879-1", "Phosphate [Moles/volume] in Serum or Plasma", "Phosphate", "mmol/L"),
+    "mg": ("2601-3", "Magnesium [Moles/volume] in Serum or Plasma", "Magnesium", "mmol/L"),
+    "pth": ("14866-8", "Parathyrin.intact [Moles/volume] in Serum or Plasma", "PTH, intact", "pmol/L"),
+    "vitd25": ("62292-8", "25-Hydroxyvitamin D2+25-Hydroxyvitamin D3 [Mass/volume] in Serum or Plasma",
+               "25-OH vitamin D, total", "ng/mL"),
+    "alp": ("6768-6", "Alkaline phosphatase [Enzymatic activity/volume] in Serum or Plasma",
+            "Alkaline phosphatase", "U/L"),
+    "creat": ("14682-9", "Creatinine [Moles/volume] in Serum or Plasma", "Creatinine", "umol/L"),
+    "height": ("8302-2", "Body height", "Height", "cm"),
+    "weight": ("29463-7", "Body weight", "Weight", "kg"),
+    "qtc": ("8636-3", "QT interval corrected", "QTc (ECG)", "ms"),
+    "ga": ("76516-4", "Gestational age--at birth", "Gestational age at birth", "wk"),
+}
+SYMPTOM = {
+    "seizure": ("91175000", "Seizure"),
+    "bradycardia": ("48867003", "Bradycardia"),
+}
+# ATC codes from service/rules/cause-codes.toml (code lists named in the comment).
+DRUG = {
+    "ca_gluconate_iv": ("B05XA19", "calcium gluconate", "Calcium gluconate 10% IV"),  # calcium_preparations
+    "bicarbonate": ("B05XA02", "sodium bicarbonate", "Sodium bicarbonate 4.2% IV"),  # sodium_bicarbonate
+    "k_phosphate": ("B05XA06", "potassium phosphate, incl. combinations with other potassium salts",
+                    "Potassium phosphate IV"),  # phosphate_preparations
+    "ceftriaxone": ("J01DD04", "ceftriaxone", "Ceftriaxone IV"),  # ceftriaxone
+}
+CONDITION = {
+    "ckd": (SCT, "709044004", "Chronic kidney disease (disorder)"),  # chronic_kidney_disease
+    "hypopara": ("http://hl7.org/fhir/sid/icd-10-cm", "E20.9", "Hypoparathyroidism, unspecified"),
+    "rickets": (SCT, "41345002", "Rickets"),  # rickets
+}
+ALL_SAFETY = ["weight", "overshoot", "digoxin", "precipitation", "ceftriaxone", "saline-diluent", "arterial-line",
+              "extravasation", "bradycardia", "qtc", "caxp", "daily-maximum"]
+
+
+class Case:
+    """One request under construction."""
+
+    def __init__(self, name, family, given, gender, birth, birth_time=None):
+        self.name = name
+        self.n = 0
+        self.subject = self.urn()
+        patient = {
+            "resourceType": "Patient",
+            "identifier": [{"use": "usual", "system": MRN,
+                            "value": f"LCH-{uuid.uuid5(NS, name).int % 10**8:08d}"}],
+            "active": True,
+            "name": [{"use": "official", "family": family, "given": given}],
+            "gender": gender,
+            "birthDate": birth,
+        }
+        if birth_time:
+            patient["_birthDate"] = {"extension": [
+                {"url": "http://hl7.org/fhir/StructureDefinition/patient-birthTime", "valueDateTime": birth_time}]}
+        self.entries = [{"fullUrl": self.subject, "resource": patient}]
+        self.access = None
+
+    def urn(self):
+        self.n += 1
+        return f"urn:uuid:{uuid.uuid5(NS, f'{self.name}/{self.n}')}"
+
+    def add(self, resource):
+        self.entries.append({"fullUrl": self.urn(), "resource": resource})
+        return self
+
+    def lab(self, key, value, when):
+        loinc, display, text, unit = LAB[key]
+        coding = {"system": LOINC, "code": loinc, "display": display}
+        vital = key in ("height", "weight", "qtc", "ga")
+        r = {
+            "resourceType": "Observation",
+            "status": "final",
+            "category": [{"coding": [{"system": "http://terminology.hl7.org/CodeSystem/observation-category",
+                                      "code": "vital-signs" if key in ("height", "weight") else
+                                      ("exam" if vital else "laboratory")}]}],
+            "code": {"coding": [coding], "text": text},
+            "subject": {"reference": self.subject},
+            "effectiveDateTime": when,
+            "valueQuantity": {"value": value, "unit": unit, "system": UCUM, "code": unit},
+        }
+        if not vital:
+            r["issued"] = when[:14] + "55:00" + when[19:]
+        return self.add(r)
+
+    def local_lab(self, coding, text, value, unit, when):
+        """A result under a site's local code (tests/cases-site/site-rules.toml)."""
+        return self.add({
+            "resourceType": "Observation",
+            "status": "final",
+            "category": [{"coding": [{"system": "http://terminology.hl7.org/CodeSystem/observation-category",
+                                      "code": "laboratory"}]}],
+            "code": {"coding": [coding], "text": text},
+            "subject": {"reference": self.subject},
+            "effectiveDateTime": when,
+            "issued": "2026-11-30T06:15:00-05:00",
+            "valueQuantity": {"value": value, "unit": unit, "system": UCUM, "code": unit},
+        })
+
+    def symptom(self, key, onset):
+        code, display = SYMPTOM[key]
+        return self.add({
+            "resourceType": "Condition",
+            "clinicalStatus": {"coding": [{"system": "http://terminology.hl7.org/CodeSystem/condition-clinical",
+                                           "code": "active"}]},
+            "verificationStatus": {"coding": [{"system": "http://terminology.hl7.org/CodeSystem/condition-ver-status",
+                                               "code": "confirmed"}]},
+            "code": {"coding": [{"system": SCT, "code": code, "display": display}], "text": display},
+            "subject": {"reference": self.subject},
+            "onsetDateTime": onset,
+        })
+
+    def condition(self, key, onset):
+        system, code, display = CONDITION[key]
+        return self.add({
+            "resourceType": "Condition",
+            "clinicalStatus": {"coding": [{"system": "http://terminology.hl7.org/CodeSystem/condition-clinical",
+                                           "code": "active"}]},
+            "code": {"coding": [{"system": system, "code": code, "display": display}], "text": display},
+            "subject": {"reference": self.subject},
+            "onsetDateTime": onset,
+        })
+
+    def administration(self, key, status, start, end=None, dose_mg=None):
+        code, display, text = DRUG[key]
+        r = {
+            "resourceType": "MedicationAdministration",
+            "status": status,
+            "medicationCodeableConcept": {"coding": [{"system": ATC, "code": code, "display": display}],
+                                          "text": text},
+            "subject": {"reference": self.subject},
+        }
+        if end is None and status == "completed":
+            r["effectiveDateTime"] = start
+        else:
+            r["effectivePeriod"] = {"start": start, **({"end": end} if end else {})}
+        if dose_mg is not None:
+            r["dosage"] = {"route": {"coding": [{"system": SCT, "code": "47625008",
+                                                  "display": "Intravenous route"}]},
+                           "dose": {"value": dose_mg, "unit": "mg", "system": UCUM, "code": "mg"}}
+        return self.add(r)
+
+    def request(self):
+        bundle = {"resourceType": "Bundle", "id": self.name, "type": "collection",
+                  "timestamp": "2026-11-30T09:55:00-05:00", "entry": self.entries}
+        if self.access is None:
+            return bundle
+        return {"resourceType": "Parameters", "id": f"{self.name}-request", "parameter": [
+            {"name": "bundle", "resource": bundle},
+            {"name": "vascularAccess", "valueCode": self.access},
+        ]}
+
+
+WRITTEN = []
+
+
+def write(case, expect, folder=CASES):
+    (folder / f"{case.name}.json").write_text(json.dumps(case.request(), indent=2) + "\n")
+    text = expect.strip("\n") + "\n"
+    assert f'now = "{NOW}"' in text, case.name
+    (folder / f"{case.name}.expect.toml").write_text(text)
+    WRITTEN.append(f"{folder.name}/{case.name}")
+
+
+def absent(*present, extra=()):
+    """Every safety key except those present (and the site-only saline check)."""
+    keys = [k for k in ALL_SAFETY if k not in present and k not in extra]
+    return "[" + ", ".join(f'"{k}"' for k in keys) + "]"
+
+
+R = "2026-11-30T07:40:00-05:00"   # the calcium draw of most cases, 12:40Z
+W = "2026-11-30T07:10:00-05:00"   # a weight measured on admission
+SZ = "2026-11-30T06:50:00-05:00"  # a seizure before the draw
+
+# ---------------------------------------------------------------------------
+# Safety checks (defaults): one case per check key.
+# ---------------------------------------------------------------------------
+
+c = Case("safety-weight-missing-child", "Orrinford", ["Caspian"], "male", "2021-06-14")
+c.lab("ica", 0.84, R).symptom("seizure", SZ)
+write(c, f'''
+description = "Boy 5 y 5 mo, ionized Ca 0.84 mmol/L (at or below the severe grade 0.9: high) with a seizure, and no body weight recorded: no weight-based dose is proposed and the weight check says a current weight is needed. Without a proposal none of the IV checks can fire."
+now = "{NOW}"
+severity = "high"
+safety_present = ["weight"]
+# No proposal, so the checks tied to a proposed IV calcium (line, interactions, QTc, CaxP, daily maximum) stay silent.
+safety_absent = {absent("weight")}
+proposals_absent = ["calcium-bolus", "calcium-infusion", "calcium-chloride", "oral-calcium"]
+''')
+
+c = Case("safety-weight-stale-child", "Brackenbury", ["Imogen", "Tess"], "female", "2017-04-03")
+c.lab("ica", 0.88, R).symptom("seizure", SZ).lab("weight", 27.5, "2026-11-20T11:30:00-05:00")
+write(c, f'''
+description = "Girl 9 y 7 mo, ionized Ca 0.88 mmol/L (severe grade 0.9: high) with a seizure; the only weight (27.5 kg) was measured on 2026-11-20, 10 days before the clock, older than the 7-day limit of treatment.toml (weight.max_age_days): no dose is proposed until a current weight is recorded."
+now = "{NOW}"
+severity = "high"
+safety_present = ["weight"]
+safety_absent = {absent("weight")}
+proposals_absent = ["calcium-bolus", "calcium-infusion", "calcium-chloride", "oral-calcium"]
+''')
+
+c = Case("safety-overshoot-child", "Quenby", ["Rafferty"], "male", "2020-02-19")
+c.lab("ica", 1.24, R).lab("weight", 21.0, W)
+c.administration("ca_gluconate_iv", "in-progress", "2026-11-29T22:00:00-05:00")
+write(c, f'''
+description = "Boy 6 y 9 mo on a calcium gluconate infusion since 22:00 yesterday (MedicationAdministration in-progress); ionized Ca now 1.24 mmol/L, within the child interval 1.11-1.30: not hypocalcemic, so no calcium is proposed, and the running infusion is flagged for overshoot (consider weaning or stopping)."
+now = "{NOW}"
+status = "success"
+severity = "none"
+safety_present = ["overshoot"]
+# Nothing is proposed with a normal calcium, so no proposal-tied check fires, and no weight check either.
+safety_absent = {absent("overshoot")}
+proposals_absent = ["calcium-bolus", "calcium-infusion", "calcium-chloride", "oral-calcium"]
+''')
+
+c = Case("safety-precipitation-bicarbonate-infant", "Pellowe", ["Juniper"], "female", "2026-04-22")
+c.lab("ica", 0.86, R).symptom("seizure", SZ).lab("weight", 7.9, W)
+c.administration("bicarbonate", "in-progress", "2026-11-30T06:30:00-05:00")
+c.access = "central"
+write(c, f'''
+description = "Girl 7 mo in intensive care with a sodium bicarbonate infusion running, ionized Ca 0.86 mmol/L (severe grade 0.9: high) with a seizure; central line: IV calcium is proposed and the bicarbonate precipitation check fires (never through the same line)."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
+safety_present = ["precipitation"]
+# Central line: no extravasation or arterial warning; 7 months: not a neonate, so no ceftriaxone check; no total calcium, so no CaxP.
+safety_absent = {absent("precipitation", extra=["saline-diluent"])}
+[doses.calcium-bolus]
+# 7.9 kg x 50 mg/kg = 395 mg calcium gluconate (under the 1000 mg cap).
+min = 394.0
+max = 396.0
+[doses.calcium-chloride]
+# 7.9 kg x 20 mg/kg = 158 mg calcium chloride (central line only).
+min = 157.0
+max = 159.0
+''')
+
+c = Case("safety-precipitation-phosphate-child", "Ellacombe", ["Thaddeus"], "male", "2016-08-30")
+c.lab("ica", 0.87, R).lab("weight", 31.0, W)
+c.administration("k_phosphate", "in-progress", "2026-11-30T04:00:00-05:00")
+c.access = "peripheral"
+write(c, f'''
+description = "Boy 10 y 3 mo receiving IV potassium phosphate for refeeding hypophosphatemia (MedicationAdministration in-progress) whose ionized Ca fell to 0.87 mmol/L (severe grade 0.9: high); peripheral line: IV calcium is proposed and the phosphate precipitation check fires, as does the peripheral extravasation warning."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+proposals_absent = ["calcium-chloride"]
+safety_present = ["precipitation", "extravasation"]
+safety_absent = {absent("precipitation", "extravasation", extra=["saline-diluent"])}
+[doses.calcium-bolus]
+# 31 kg x 50 mg/kg = 1550 mg, capped at the maximum single dose 1000 mg (treatment.toml bolus.chosen).
+min = 1000.0
+max = 1000.0
+''')
+
+c = Case("safety-ceftriaxone-neonate-28-days", "Harrowgate", ["Baby Girl"], "female", "2026-11-02",
+         "2026-11-02T04:15:00-05:00")
+c.lab("ica", 0.68, R).lab("weight", 3.9, W)
+c.administration("ceftriaxone", "completed", "2026-11-30T05:00:00-05:00")
+c.access = "peripheral"
+write(c, f'''
+description = "Girl born 2026-11-02 04:15, 28 completed days old at the 07:40 draw (28 days 3 h 25 min) (still a neonate: the contraindication is for 28 days or younger, inclusive), given IV ceftriaxone at 05:00 for suspected late-onset sepsis; ionized Ca 0.68 mmol/L (term-neonate severe grade 0.7: high): IV calcium is proposed and the neonatal ceftriaxone contraindication fires."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus"]
+safety_present = ["ceftriaxone", "extravasation"]
+safety_absent = {absent("ceftriaxone", "extravasation", extra=["saline-diluent"])}
+[doses.calcium-bolus]
+# Under 29 days the neonatal source applies: 3.9 kg x 100 mg/kg = 390 mg calcium gluconate.
+min = 389.0
+max = 391.0
+''')
+
+c = Case("safety-ceftriaxone-infant-29-days", "Merriwether", ["Ansel"], "male", "2026-11-01",
+         "2026-11-01T06:05:00-05:00")
+c.lab("ica", 0.85, R).lab("weight", 4.2, W)
+c.administration("ceftriaxone", "completed", "2026-11-30T05:00:00-05:00")
+c.access = "peripheral"
+write(c, f'''
+description = "Boy born 2026-11-01 06:05, 29 completed days old at the 07:40 draw (29 days 1 h 35 min), given IV ceftriaxone at 05:00; ionized Ca 0.85 mmol/L (infant severe grade 0.9: high). Past 28 days the neonatal contraindication does not apply (the label allows sequential use with a flushed line), so the ceftriaxone check does not fire; the dose is the 29-day-and-older one."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus"]
+safety_present = ["extravasation"]
+safety_absent = ["ceftriaxone", "digoxin", "precipitation", "arterial-line", "weight", "bradycardia", "qtc"]
+[doses.calcium-bolus]
+# From 29 days: 4.2 kg x 50 mg/kg = 210 mg calcium gluconate.
+min = 209.0
+max = 211.0
+''')
+
+c = Case("safety-arterial-line-neonate", "Fairweather", ["Baby Boy"], "male", "2026-11-28",
+         "2026-11-28T19:05:00-05:00")
+c.lab("ga", 38, "2026-11-28T19:05:00-05:00").lab("ica", 0.66, R).lab("weight", 3.3, W)
+c.access = "umbilical-arterial"
+write(c, f'''
+description = "Boy born at 38 weeks on 2026-11-28, day 1 at the draw, whose only recorded line is an umbilical arterial catheter; ionized Ca 0.66 mmol/L (term-neonate severe grade 0.7: high): IV calcium is proposed with the warning never to give it through the arterial line (secure venous access first); calcium chloride is not proposed without a central venous line."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+proposals_absent = ["calcium-chloride"]
+safety_present = ["arterial-line"]
+# The line is known (arterial), so the peripheral extravasation warning is not the one given.
+safety_absent = {absent("arterial-line", extra=["saline-diluent"])}
+[doses.calcium-bolus]
+# Neonate: 3.3 kg x 100 mg/kg = 330 mg calcium gluconate.
+min = 329.0
+max = 331.0
+''')
+
+c = Case("safety-extravasation-peripheral-child", "Lindqvist", ["Saffron"], "female", "2022-07-11")
+c.lab("ica", 0.89, R).lab("weight", 16.0, W)
+c.access = "peripheral"
+write(c, f'''
+description = "Girl 4 y 4 mo, ionized Ca 0.89 mmol/L (severe grade 0.9: high), asymptomatic, with a peripheral cannula stated in the request: IV calcium is proposed with the extravasation warning; calcium chloride is not proposed for a peripheral line."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+proposals_absent = ["calcium-chloride"]
+safety_present = ["extravasation"]
+safety_absent = {absent("extravasation", extra=["saline-diluent"])}
+[doses.calcium-bolus]
+# 16 kg x 50 mg/kg = 800 mg calcium gluconate.
+min = 799.0
+max = 801.0
+''')
+
+c = Case("safety-bradycardia-neonate", "Oakenshaw", ["Baby Girl"], "female", "2026-11-26",
+         "2026-11-26T10:20:00-05:00")
+c.lab("ica", 0.78, R).lab("weight", 3.4, W).symptom("bradycardia", "2026-11-30T07:25:00-05:00")
+c.access = "umbilical-venous"
+write(c, f'''
+description = "Girl day 4 (born 2026-11-26 10:20), ionized Ca 0.78 mmol/L (term-neonate mild grade 1.0, above the severe 0.7: moderate by value) with bradycardia recorded at 07:25: symptomatic, so severity high and IV calcium is proposed, with the bradycardia check (ECG and heart-rate monitoring; stop the neonatal bolus below 100 bpm). Umbilical venous catheter: no arterial or peripheral warning."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["bradycardia"]
+safety_absent = {absent("bradycardia", extra=["saline-diluent"])}
+[doses.calcium-bolus]
+# Neonate: 3.4 kg x 100 mg/kg = 340 mg calcium gluconate.
+min = 339.0
+max = 341.0
+''')
+
+c = Case("safety-qtc-adolescent", "Vantongeren", ["Marisol"], "female", "2012-03-08")
+c.lab("ica", 1.02, R).lab("qtc", 476, "2026-11-30T07:55:00-05:00").lab("weight", 48.0, W)
+c.access = "peripheral"
+write(c, f'''
+description = "Girl 14 y 8 mo, ionized Ca 1.02 mmol/L (below 1.11, above the mild grade 1.0: low by value) with a QTc of 476 ms 15 minutes after the draw (> 440 ms, within the 24 h pairing window): symptomatic, so severity high, IV calcium proposed, and the QTc check asks for ECG monitoring."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["qtc", "extravasation"]
+safety_absent = {absent("qtc", "extravasation", extra=["saline-diluent"])}
+[doses.calcium-bolus]
+# 48 kg x 50 mg/kg = 2400 mg, capped at 1000 mg (treatment.toml).
+min = 1000.0
+max = 1000.0
+''')
+
+c = Case("safety-caxp-child-ckd", "Abernathy", ["Lucan"], "male", "2018-05-27")
+(c.lab("ica", 0.98, R).lab("tca", 1.95, R).lab("phos", 3.0, R).lab("weight", 25.0, W)
+ .condition("ckd", "2024-09-01"))
+write(c, f'''
+description = "Boy 8 y 6 mo with chronic kidney disease: ionized Ca 0.98 mmol/L (mild grade 1.0: moderate), asymptomatic, so oral calcium is proposed; total Ca 1.95 mmol/L and phosphate 3.0 mmol/L give a calcium-phosphate product above the under-12 limit, so the CaxP check fires."
+now = "{NOW}"
+severity = "moderate"
+proposals = ["oral-calcium"]
+proposals_absent = ["calcium-bolus"]
+# Ca 1.95 mmol/L x 40.078 / 10 = 7.82 mg/dL; P 3.0 mmol/L x 30.974 / 10 = 9.29 mg/dL;
+# 7.82 x 9.29 = 72.6 mg2/dL2 > 65 (KDOQI, 12 years and younger; formulary.toml ca_x_p_under_12y).
+safety_present = ["caxp"]
+safety_absent = {absent("caxp", extra=["saline-diluent"])}
+''')
+
+c = Case("safety-caxp-adolescent-limit", "Drummelow", ["Keziah"], "female", "2012-01-15")
+(c.lab("ica", 0.97, R).lab("tca", 2.00, R).lab("phos", 2.3, R).lab("weight", 50.0, W)
+ .condition("hypopara", "2025-03-10"))
+write(c, f'''
+description = "Girl 14 y 10 mo with hypoparathyroidism: ionized Ca 0.97 mmol/L (mild grade: moderate), oral calcium proposed; total Ca 2.00 and phosphate 2.3 mmol/L give a product between the two KDOQI limits: above the adolescent limit 55, so the check fires (the same numbers in a child under 12 do not: safety-caxp-child-below-limit)."
+now = "{NOW}"
+severity = "moderate"
+proposals = ["oral-calcium"]
+# Ca 2.00 x 40.078 / 10 = 8.02 mg/dL; P 2.3 x 30.974 / 10 = 7.12 mg/dL; 8.02 x 7.12 = 57.1 mg2/dL2 > 55 (ca_x_p_over_12y).
+safety_present = ["caxp"]
+safety_absent = {absent("caxp", extra=["saline-diluent"])}
+''')
+
+c = Case("safety-caxp-child-below-limit", "Drummelow", ["Ottilie"], "female", "2016-06-02")
+(c.lab("ica", 0.97, R).lab("tca", 2.00, R).lab("phos", 2.3, R).lab("weight", 33.0, W)
+ .condition("hypopara", "2025-03-10"))
+write(c, f'''
+description = "Girl 10 y 5 mo with hypoparathyroidism and the same results as safety-caxp-adolescent-limit (ionized 0.97: moderate, oral calcium; total Ca 2.00, phosphate 2.3 mmol/L): the product 57.1 is below the limit 65 for 12 years and younger, so the CaxP check does not fire."
+now = "{NOW}"
+severity = "moderate"
+proposals = ["oral-calcium"]
+# 8.02 mg/dL x 7.12 mg/dL = 57.1 mg2/dL2, not above 65 (ca_x_p_under_12y).
+safety_absent = {absent(extra=["saline-diluent"])}
+''')
+
+c = Case("safety-daily-maximum-toddler", "Castellane", ["Ignatius"], "male", "2023-09-05")
+c.lab("ica", 0.86, R).symptom("seizure", SZ).lab("weight", 14.0, W)
+c.administration("ca_gluconate_iv", "completed", "2026-11-29T19:30:00-05:00", dose_mg=700)
+c.administration("ca_gluconate_iv", "completed", "2026-11-29T20:00:00-05:00", "2026-11-30T06:00:00-05:00",
+                 dose_mg=1120)
+c.administration("ca_gluconate_iv", "completed", "2026-11-30T07:00:00-05:00", dose_mg=700)
+c.access = "central"
+write(c, f'''
+description = "Boy 3 y 2 mo, 14 kg, who has had two calcium gluconate boluses and a 10-hour infusion in the last 24 h and still has an ionized Ca of 0.86 mmol/L (severe: high) with a seizure; central line. The proposed infusion on top of what was given exceeds the daily maximum, so the daily-maximum check fires."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
+# Given in the last 24 h (MedicationAdministration doses in mg): 700 + 1120 (10 h x 112 mg/h) + 700 = 2520 mg.
+# Proposed infusion: 14 kg x 8 mg/kg/h = 112 mg/h = 11.2 mL/h at 10 mg/mL; over 24 h 112 x 24 = 2688 mg.
+# Daily maximum: the upper rate 13 mg/kg/h x 24 h x 14 kg = 4368 mg; 2520 + 2688 = 5208 mg > 4368 mg.
+safety_present = ["daily-maximum"]
+safety_absent = {absent("daily-maximum", extra=["saline-diluent"])}
+[doses.calcium-bolus]
+# 14 kg x 50 mg/kg = 700 mg (the check warns; it does not change the weight-based dose).
+min = 699.0
+max = 701.0
+''')
+
+c = Case("safety-clean-central-child", "Whitlock", ["Philippa"], "female", "2020-10-09")
+(c.lab("ica", 0.85, R).symptom("seizure", SZ).lab("qtc", 432, "2026-11-30T07:50:00-05:00")
+ .lab("weight", 20.0, W))
+c.access = "central"
+write(c, f'''
+description = "Girl 6 y 1 mo, 20 kg, ionized Ca 0.85 mmol/L (severe: high) with a seizure; central venous line, QTc 432 ms (not above 440), no interacting medicine, no calcium given yet: IV calcium gluconate and the calcium chloride alternative are proposed and no safety check fires."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
+safety_absent = {absent(extra=["saline-diluent"])}
+[doses.calcium-bolus]
+# 20 kg x 50 mg/kg = 1000 mg, exactly the 1000 mg cap.
+min = 1000.0
+max = 1000.0
+[doses.calcium-chloride]
+# 20 kg x 20 mg/kg = 400 mg calcium chloride = 4 mL of 10%.
+min = 399.0
+max = 401.0
+''')
+
+# ---------------------------------------------------------------------------
+# Age bands (calcium.toml): for each band a value just below its lower limit
+# and one at it; each pair is chosen so that a neighbouring band would give a
+# different answer. Then the grade thresholds where bands differ.
+# ---------------------------------------------------------------------------
+
+NEO_R = "2026-11-30T07:40:00-05:00"
+
+c = Case("band-preterm-neonate-low", "Thistlewood", ["Baby Boy"], "male", "2026-11-24", "2026-11-24T02:30:00-05:00")
+c.lab("ga", 34, "2026-11-24T02:30:00-05:00").lab("ica", 0.99, NEO_R).lab("weight", 2.1, W)
+write(c, f'''
+description = "Boy born at 34 weeks (gestational age recorded), day 6: preterm-neonate band, ionized lower limit 1.0 mmol/L. Ionized 0.99 is below it: hypocalcemia, asymptomatic, so oral calcium is proposed (a term neonate at 0.99 would also be low)."
+now = "{NOW}"
+# data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
+status = "data-required"
+# The severity is not asserted: the preterm band has no mild grade (calcium.toml: Tayside's mild grade <= 1.0 coincides with the lower limit and is not repeated), so the service reports "low" where a term neonate at 0.99 gets "moderate"; reported for review.
+proposals = ["oral-calcium"]
+proposals_absent = ["calcium-bolus"]
+''')
+
+c = Case("band-preterm-neonate-normal", "Thistlewood", ["Baby Girl"], "female", "2026-11-24",
+         "2026-11-24T02:34:00-05:00")
+c.lab("ga", 34, "2026-11-24T02:34:00-05:00").lab("ica", 1.00, NEO_R).lab("weight", 2.0, W)
+write(c, f'''
+description = "Girl born at 34 weeks (twin of band-preterm-neonate-low), day 6: ionized 1.00 mmol/L is at the preterm lower limit 1.0: normal. Had the term-neonate band been used (lower 1.10, mild grade 1.0) she would be low, moderate."
+now = "{NOW}"
+status = "success"
+severity = "none"
+proposals_absent = ["oral-calcium", "calcium-bolus"]
+''')
+
+c = Case("band-term-neonate-low", "Ravensdale", ["Baby Girl"], "female", "2026-11-20")
+c.lab("ga", 39, "2026-11-20T08:00:00-05:00").lab("ica", 1.09, NEO_R).lab("weight", 3.5, W)
+write(c, f'''
+description = "Girl born at 39 weeks, day 10: term-neonate band, ionized lower limit 1.10 mmol/L. Ionized 1.09 is below it and above the mild grade 1.0: low. (The preterm band, lower 1.0, would call it normal.)"
+now = "{NOW}"
+# data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
+status = "data-required"
+severity = "low"
+proposals = ["oral-calcium"]
+proposals_absent = ["calcium-bolus"]
+''')
+
+c = Case("band-term-neonate-normal-28-days", "Ravensdale", ["Baby Boy"], "male", "2026-11-02",
+         "2026-11-02T03:10:00-05:00")
+c.lab("ica", 1.10, NEO_R).lab("weight", 4.1, W)
+write(c, f'''
+description = "Boy born 2026-11-02 03:10, 28 completed days old at the 07:40 draw (28 days 4 h 30 min) (the last day of the neonatal bands, which end before 29 days): ionized 1.10 mmol/L is at the term-neonate lower limit 1.10: normal. (The infant band, lower 1.11, would call it low: see band-infant-29-days-ionized-low.)"
+now = "{NOW}"
+status = "success"
+severity = "none"
+proposals_absent = ["oral-calcium", "calcium-bolus"]
+''')
+
+c = Case("band-infant-29-days-ionized-low", "Ravensdale", ["Wilhelmina"], "female", "2026-11-01",
+         "2026-11-01T05:20:00-05:00")
+c.lab("ica", 1.10, NEO_R).lab("weight", 4.0, W)
+write(c, f'''
+description = "Girl born 2026-11-01 05:20, 29 completed days old at the 07:40 draw (29 days 2 h 20 min): infant band (29 days to under 2 years), ionized lower limit 1.11 mmol/L. The same 1.10 that is normal at 28 days (band-term-neonate-normal-28-days) is low here, above the mild grade 1.0: low."
+now = "{NOW}"
+# data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
+status = "data-required"
+severity = "low"
+proposals = ["oral-calcium"]
+''')
+
+c = Case("band-infant-total-low", "Greywell", ["Osric"], "male", "2025-09-18")
+c.lab("tca_mg", 8.9, R).lab("weight", 9.8, W)
+write(c, f'''
+description = "Boy 14 mo, total Ca 8.9 mg/dL with no albumin: infant band, total lower limit 2.245 mmol/L (9.0 mg/dL). 8.9 mg/dL is low (severity low, above the mild grade 2.0); as an unadjusted total it needs an albumin and an ionized Ca (data-required). The child band (lower 2.20) would call it normal."
+now = "{NOW}"
+# 8.9 mg/dL x 10 / 40.078 = 2.2207 mmol/L < 2.245.
+status = "data-required"
+severity = "low"
+proposals = ["oral-calcium"]
+''')
+
+c = Case("band-infant-total-normal", "Greywell", ["Primrose"], "female", "2025-09-18")
+c.lab("tca_mg", 9.0, R).lab("weight", 9.2, W)
+write(c, f'''
+description = "Girl 14 mo, total Ca 9.0 mg/dL with no albumin: at the infant band's lower limit (9.0 mg/dL = 2.245 mmol/L, inclusive): normal, though still data-required as an unadjusted total."
+now = "{NOW}"
+# 9.0 mg/dL x 10 / 40.078 = 2.2456 mmol/L >= 2.245.
+status = "data-required"
+severity = "none"
+proposals_absent = ["oral-calcium"]
+''')
+
+c = Case("band-child-total-low", "Penhallow", ["Ida"], "female", "2019-05-06")
+c.lab("tca", 2.19, R).lab("weight", 23.0, W)
+write(c, f'''
+description = "Girl 7 y 6 mo, total Ca 2.19 mmol/L with no albumin: child band, total lower limit 2.20 mmol/L: low (above the mild grade 2.0: severity low), data-required as an unadjusted total. The adolescent band (lower 2.095) would call it normal."
+now = "{NOW}"
+status = "data-required"
+severity = "low"
+proposals = ["oral-calcium"]
+''')
+
+c = Case("band-child-total-normal", "Penhallow", ["Bertram"], "male", "2019-05-06")
+c.lab("tca", 2.20, R).lab("weight", 24.0, W)
+write(c, f'''
+description = "Boy 7 y 6 mo, total Ca 2.20 mmol/L with no albumin: at the child band's lower limit 2.20: normal (data-required as an unadjusted total). The infant band (lower 2.245) would call it low."
+now = "{NOW}"
+status = "data-required"
+severity = "none"
+proposals_absent = ["oral-calcium"]
+''')
+
+c = Case("band-adolescent-total-low", "Kilbride", ["Declan"], "male", "2011-07-21")
+c.lab("tca_mg", 8.3, R).lab("weight", 56.0, W)
+write(c, f'''
+description = "Boy 15 y 4 mo, total Ca 8.3 mg/dL with no albumin: adolescent band, total lower limit 2.095 mmol/L (8.4 mg/dL): low, above the mild grade 2.0 (severity low), data-required as an unadjusted total."
+now = "{NOW}"
+# 8.3 mg/dL x 10 / 40.078 = 2.0710 mmol/L < 2.095 and > 2.0.
+status = "data-required"
+severity = "low"
+proposals = ["oral-calcium"]
+''')
+
+c = Case("band-adolescent-total-normal", "Kilbride", ["Maeve"], "female", "2011-07-21")
+c.lab("tca_mg", 8.4, R).lab("weight", 54.0, W)
+write(c, f'''
+description = "Girl 15 y 4 mo, total Ca 8.4 mg/dL with no albumin: at the adolescent lower limit (8.4 mg/dL = 2.095 mmol/L, inclusive): normal (data-required as an unadjusted total). The child band (lower 2.20) would call it low."
+now = "{NOW}"
+# 8.4 mg/dL x 10 / 40.078 = 2.0959 mmol/L >= 2.095.
+status = "data-required"
+severity = "none"
+proposals_absent = ["oral-calcium"]
+''')
+
+# Grades where the bands differ: ionized severe is <= 0.7 in neonates and <= 0.9 from 29 days.
+c = Case("band-term-neonate-grade-mild", "Ashdown", ["Baby Boy"], "male", "2026-11-27", "2026-11-27T16:45:00-05:00")
+c.lab("ica", 0.71, NEO_R).lab("weight", 3.6, W)
+write(c, f'''
+description = "Boy day 2 (term-neonate band), ionized 0.71 mmol/L, asymptomatic: at or below the mild grade 1.0 but above the neonatal severe grade 0.7: moderate, oral calcium. (From 29 days the severe grade is 0.9 and this value would be high.)"
+now = "{NOW}"
+# data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
+status = "data-required"
+severity = "moderate"
+proposals = ["oral-calcium"]
+proposals_absent = ["calcium-bolus"]
+''')
+
+c = Case("band-term-neonate-grade-severe", "Ashdown", ["Baby Girl"], "female", "2026-11-27",
+         "2026-11-27T16:49:00-05:00")
+c.lab("ica", 0.70, NEO_R).lab("weight", 3.4, W)
+write(c, f'''
+description = "Girl day 2 (term-neonate band), ionized 0.70 mmol/L, asymptomatic: at the neonatal severe grade 0.7 (at or below): high, so IV calcium is proposed."
+now = "{NOW}"
+# data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
+status = "data-required"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+[doses.calcium-bolus]
+# Neonate: 3.4 kg x 100 mg/kg = 340 mg calcium gluconate.
+min = 339.0
+max = 341.0
+''')
+
+c = Case("band-child-grade-severe", "Marchbank", ["Florian"], "male", "2020-01-12")
+c.lab("ica", 0.90, R).lab("weight", 22.0, W)
+write(c, f'''
+description = "Boy 6 y 10 mo, ionized 0.90 mmol/L, asymptomatic: at the child severe grade 0.9 (at or below): high, IV calcium. (A neonate at 0.90 would be moderate: the neonatal severe grade is 0.7.)"
+now = "{NOW}"
+# data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
+status = "data-required"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+[doses.calcium-bolus]
+# 22 kg x 50 mg/kg = 1100 mg, capped at 1000 mg.
+min = 1000.0
+max = 1000.0
+''')
+
+c = Case("band-child-grade-mild", "Marchbank", ["Clementine"], "female", "2020-01-12")
+c.lab("ica", 0.91, R).lab("weight", 21.0, W)
+write(c, f'''
+description = "Girl 6 y 10 mo, ionized 0.91 mmol/L, asymptomatic: above the severe grade 0.9, at or below the mild grade 1.0: moderate, oral calcium, no IV calcium."
+now = "{NOW}"
+# data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
+status = "data-required"
+severity = "moderate"
+proposals = ["oral-calcium"]
+proposals_absent = ["calcium-bolus"]
+''')
+
+c = Case("band-term-neonate-total-grade", "Ashdown", ["Cosimo"], "male", "2026-11-22")
+c.lab("tca", 1.80, NEO_R).lab("weight", 3.5, W)
+write(c, f'''
+description = "Boy day 8 (term-neonate band), total Ca 1.80 mmol/L with no albumin: at the neonatal mild grade 1.8, above the neonatal severe grade 1.6: moderate (from 29 days 1.8 is the severe total grade and would be high); data-required as an unadjusted total."
+now = "{NOW}"
+status = "data-required"
+severity = "moderate"
+proposals = ["oral-calcium"]
+proposals_absent = ["calcium-bolus"]
+''')
+
+# ---------------------------------------------------------------------------
+# Site cases (tests/cases-site, run with --rules tests/cases-site/site-rules.toml).
+# ---------------------------------------------------------------------------
+
+D125 = {"system": LOCAL_LAB, "code": "VITD125", "display": "1,25-dihydroxyvitamin D, serum (send-out)"}
+WEEK = "2026-11-27T08:30:00-05:00"  # send-out vitamin D results drawn earlier in the week
+
+c = Case("vddr-type1-leads", "Sorensby", ["Elodie"], "female", "2025-06-02")
+(c.lab("ica", 0.96, R).lab("phos", 0.8, R).lab("pth", 22.0, R).lab("alp", 980, R).lab("vitd25", 34.0, WEEK)
+ .local_lab(D125, "1,25-dihydroxyvitamin D", 8, "pg/mL", WEEK).lab("weight", 9.4, W))
+write(c, f'''
+description = "Girl 17 mo with rickets: ionized Ca 0.96 mmol/L (mild: moderate), phosphate 0.8 mmol/L (low), PTH 22 pmol/L (high), alkaline phosphatase 980 U/L (high), 25-OH vitamin D 34 ng/mL (sufficient) and 1,25-dihydroxyvitamin D 8 pg/mL under the site's local code VITD125 (low): vitamin D-dependent rickets type 1 (1-alpha-hydroxylase defect) leads; nutritional vitamin D deficiency is ruled out by the normal 25-OH D and hypoparathyroidism by the high PTH. Calcitriol is proposed for specialist dosing."
+now = "{NOW}"
+# 8 pg/mL x 2.4 = 19.2 pmol/L, below the 0-16 y interval 57.6-206.4 pmol/L (lab-ranges.toml);
+# 34 ng/mL x 2.496 = 84.9 nmol/L, sufficient (> 50 nmol/L, Munns 2016); PTH 22 > 6.25 pmol/L (1-10 y);
+# phosphate 0.8 < 0.90 mmol/L (1-16 y). Type 1: low 1,25 +3 (strong_for), normal 25-OH D +1, high PTH +1 = 5: likely.
+# Type 2 is not asserted: the service weighs it 'possible' (low 1,25 -3, normal 25-OH D +1, high PTH +1 = -1),
+# where a low 1,25-(OH)2D argues it out; reported for review rather than encoded.
+severity = "moderate"
+leading_cause = "vddr_type1"
+causes_ruled_out = ["vitamin_d_deficiency", "hypoparathyroidism"]
+proposals = ["oral-calcium", "calcitriol"]
+proposals_absent = ["cholecalciferol"]
+''', SITE)
+
+c = Case("vddr-type2-leads", "Sorensby", ["Anselm"], "male", "2024-02-14")
+(c.lab("ica", 0.95, R).lab("phos", 0.8, R).lab("pth", 30.0, R).lab("alp", 1150, R).lab("vitd25", 38.0, WEEK)
+ .local_lab(D125, "1,25-dihydroxyvitamin D", 310, "pg/mL", WEEK).lab("weight", 13.0, W))
+write(c, f'''
+description = "Boy 2 y 9 mo with rickets: ionized Ca 0.95 mmol/L (mild: moderate), phosphate 0.8 mmol/L (low), PTH 30 pmol/L (high), alkaline phosphatase 1150 U/L (high), 25-OH vitamin D 38 ng/mL (sufficient) and 1,25-dihydroxyvitamin D 310 pg/mL under the local code VITD125 (high): vitamin D-dependent rickets type 2 (end-organ resistance) leads; type 1 and nutritional deficiency are ruled out."
+now = "{NOW}"
+# 310 pg/mL x 2.4 = 744 pmol/L, above 206.4 pmol/L; 38 ng/mL x 2.496 = 94.8 nmol/L, sufficient; PTH 30 > 6.25 pmol/L.
+# Type 2: high 1,25 +3, normal 25-OH D +1, high PTH +1 = 5: likely.
+severity = "moderate"
+leading_cause = "vddr_type2"
+causes_ruled_out = ["vitamin_d_deficiency", "vddr_type1", "hypoparathyroidism"]
+proposals = ["oral-calcium"]
+proposals_absent = ["cholecalciferol"]
+''', SITE)
+
+c = Case("vddr-type1-ruled-out", "Trevanion", ["Rosalie"], "female", "2023-11-20")
+(c.lab("ica", 0.97, R).lab("pth", 18.0, R).lab("vitd25", 10.0, WEEK)
+ .local_lab(D125, "1,25-dihydroxyvitamin D", 95, "pg/mL", WEEK).lab("weight", 13.5, W))
+write(c, f'''
+description = "Girl 3 y with nutritional rickets: ionized Ca 0.97 mmol/L (mild: moderate), PTH 18 pmol/L (high), 25-OH vitamin D 10 ng/mL (deficient) and 1,25-dihydroxyvitamin D 95 pg/mL under the local code VITD125 (high, as it can be in nutritional deficiency once PTH is raised): the 1-alpha-hydroxylase defect is ruled out and nutritional vitamin D deficiency leads, with cholecalciferol proposed."
+now = "{NOW}"
+# 95 pg/mL x 2.4 = 228 pmol/L, above 206.4: 'normal_or_high' rules type 1 out;
+# 10 ng/mL x 2.496 = 25.0 nmol/L, deficient (< 30 nmol/L, Munns 2016).
+severity = "moderate"
+leading_cause = "vitamin_d_deficiency"
+causes_ruled_out = ["vddr_type1"]
+proposals = ["oral-calcium", "cholecalciferol"]
+''', SITE)
+
+c = Case("vddr-type2-unlikely", "Trevanion", ["Caspar"], "male", "2023-11-20")
+(c.lab("ica", 0.97, R).lab("pth", 16.0, R)
+ .local_lab(D125, "1,25-dihydroxyvitamin D", 60, "pg/mL", WEEK).lab("weight", 14.0, W))
+write(c, f'''
+description = "Boy 3 y: ionized Ca 0.97 mmol/L (mild: moderate), PTH 16 pmol/L (high) and 1,25-dihydroxyvitamin D 60 pg/mL under the local code VITD125 (within the interval); no 25-OH vitamin D yet. End-organ resistance (type 2) needs a high 1,25-(OH)2D, so it is unlikely; a 1,25-(OH)2D that is not low rules out type 1."
+now = "{NOW}"
+# 60 pg/mL x 2.4 = 144 pmol/L, within 57.6-206.4 (lab-ranges.toml); PTH 16 > 6.25 pmol/L (1-10 y).
+# Type 2 (causes.toml weighing): 'low_or_normal' 1,25 strong_against -3, high PTH for +1 = -2 <= -2: unlikely.
+severity = "moderate"
+causes_unlikely = ["vddr_type2"]
+causes_ruled_out = ["vddr_type1"]
+''', SITE)
+
+c = Case("safety-saline-diluent", "Halloran", ["Niamh"], "female", "2019-12-01")
+c.lab("ica", 0.84, R).symptom("seizure", SZ).lab("weight", 22.5, W)
+c.access = "central"
+write(c, f'''
+description = "Girl 6 y 11 mo, ionized Ca 0.84 mmol/L (severe: high) with a seizure, central line, at a site whose bolus diluent is 0.9% sodium chloride (site-rules.toml) while dextrose stays the preferred diluent: the low-severity saline-diluent notice fires; no other check does."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
+safety_present = ["saline-diluent"]
+safety_absent = {absent("saline-diluent")}
+[doses.calcium-bolus]
+# 22.5 kg x 50 mg/kg = 1125 mg, capped at 1000 mg; the diluent does not change the dose.
+min = 1000.0
+max = 1000.0
+''', SITE)
+
+print(f"wrote {len(WRITTEN)} cases")
