@@ -303,8 +303,11 @@ fn assess(args: &AssessArgs) -> ExitCode {
         eprintln!("calcium-cds: cannot read {}: {e}", args.file);
         return ExitCode::from(EXIT_REQUEST_ERROR);
     }
-    match engine.assess(&body, now, fixed) {
+    match engine.assess_with(&body, now, fixed, args.explain) {
         Ok(outcome) => {
+            if let Some(steps) = &outcome.trace {
+                let _ = write!(std::io::stderr().lock(), "{}", crate::clinical::explain::text(steps));
+            }
             out!("{}", serde_json::to_string_pretty(&outcome.bundle).unwrap_or_default());
             ExitCode::SUCCESS
         }

@@ -131,6 +131,10 @@ pub struct AssessArgs {
     /// Fix the evaluation clock (RFC 3339, e.g. 2026-11-30T15:00:00Z).
     #[arg(long)]
     pub now: Option<String>,
+    /// Also explain: the trace of every rule evaluated, as readable text on
+    /// standard error and as a Parameters resource in the result Bundle.
+    #[arg(long)]
+    pub explain: bool,
     /// Rules.
     #[command(flatten)]
     pub rules: RuleArgs,

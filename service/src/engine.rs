@@ -3,7 +3,7 @@
 
 use serde_json::Value;
 
-use crate::clinical::{status, treatment, workup};
+use crate::clinical::{explain, status, treatment, workup};
 use crate::fhir::outcome::RequestError;
 use crate::fhir::profiles::Profiles;
 use crate::fhir::{read, write};
@@ -37,6 +37,8 @@ pub struct Outcome {
     pub severity: Option<&'static str>,
     /// Number of inputs listed as set aside or not used.
     pub not_used: usize,
+    /// The explain trace, when asked for.
+    pub trace: Option<Vec<explain::Step>>,
 }
 
 impl Engine {
@@ -48,8 +50,14 @@ impl Engine {
     /// Assess a request body. `now` is unix seconds; `now_fixed` stops a
     /// `now` part in the request from overriding it.
     pub fn assess(&self, body: &[u8], now: i64, now_fixed: bool) -> Result<Outcome, RequestError> {
+        self.assess_with(body, now, now_fixed, false)
+    }
+
+    /// As `assess`; with `explain`, the result Bundle carries the trace of
+    /// every rule evaluated as a Parameters resource (and `Outcome.trace` has it).
+    pub fn assess_with(&self, body: &[u8], now: i64, now_fixed: bool, explain: bool) -> Result<Outcome, RequestError> {
         let doc = read::parse(body)?;
-        self.assess_document(&doc, now, now_fixed, &[])
+        self.assess_document(&doc, now, now_fixed, &[], explain)
     }
 
     /// How far back a patient-context gather must look, days: the longest
@@ -73,6 +81,7 @@ impl Engine {
         now: i64,
         now_fixed: bool,
         failed: &[crate::upstream::FailedCall],
+        explain: bool,
     ) -> Result<Outcome, RequestError> {
         let mut ingested = read::read_value(doc, &self.rules.rules, &self.profiles, now, now_fixed)?;
         for f in failed {
@@ -124,9 +133,16 @@ impl Engine {
         if !failed.is_empty() && assessment.status != status::GuidanceStatus::Failure {
             assessment.status = status::GuidanceStatus::DataRequired;
         }
-        let bundle = write::result_bundle(&ctx, &ingested, &assessment, workup.as_ref(), treatment.as_ref());
+        let trace = explain.then(|| {
+            let mut steps = crate::fhir::write_explain::set_aside_steps(&ingested);
+            steps.extend(explain::trace(&self.rules.rules, &assessment, workup.as_ref(), treatment.as_ref()));
+            steps
+        });
+        let bundle =
+            write::result_bundle(&ctx, &ingested, &assessment, workup.as_ref(), treatment.as_ref(), trace.as_deref());
         Ok(Outcome {
             bundle,
+            trace,
             status: assessment.status.code(),
             severity: assessment.finding.as_ref().and_then(|f| f.severity).map(|s| s.code()),
             not_used: ingested.set_aside.len() + assessment.unused.len(),

@@ -209,7 +209,35 @@ fn now_unix() -> i64 {
     SystemTime::now().duration_since(UNIX_EPOCH).map(|d| d.as_secs() as i64).unwrap_or(0)
 }
 
+/// The `_explain` query parameter: `true` adds the trace of every rule
+/// evaluated to the result Bundle (a Parameters resource).
+fn explain_flag(req: &HttpRequest) -> Result<bool, RequestError> {
+    let mut explain = false;
+    for pair in req.query_string().split('&').filter(|p| !p.is_empty()) {
+        let (k, v) = pair.split_once('=').unwrap_or((pair, ""));
+        if k == "_explain" {
+            explain = match v {
+                "true" => true,
+                "false" => false,
+                _ => {
+                    return Err(RequestError::single(
+                        400,
+                        IssueCode::Value,
+                        "_explain",
+                        "The _explain parameter must be true or false.",
+                    ));
+                }
+            };
+        }
+    }
+    Ok(explain)
+}
+
 async fn assess(req: HttpRequest, payload: web::Payload, state: web::Data<AppState>) -> HttpResponse {
+    let explain = match explain_flag(&req) {
+        Ok(e) => e,
+        Err(e) => return error_response(&e),
+    };
     if !media_type_ok(&req) {
         return error_response(&RequestError::single(
             415,
@@ -246,7 +274,7 @@ async fn assess(req: HttpRequest, payload: web::Payload, state: web::Data<AppSta
         }
         Ok(Ok(b)) => b,
     };
-    match state.engine.assess(&body, now_unix(), false) {
+    match state.engine.assess_with(&body, now_unix(), false, explain) {
         Ok(outcome) => {
             state.metrics.assessment(outcome.status, outcome.severity.unwrap_or("none"));
             tracing::info!(
@@ -269,7 +297,11 @@ fn valid_id(id: &str) -> bool {
 }
 
 /// Gather the patient's context from the configured FHIR server, then assess.
-async fn assess_patient(path: web::Path<String>, state: web::Data<AppState>) -> HttpResponse {
+async fn assess_patient(req: HttpRequest, path: web::Path<String>, state: web::Data<AppState>) -> HttpResponse {
+    let explain = match explain_flag(&req) {
+        Ok(e) => e,
+        Err(e) => return error_response(&e),
+    };
     let id = path.into_inner();
     if !valid_id(&id) {
         return error_response(&RequestError::single(
@@ -306,7 +338,7 @@ async fn assess_patient(path: web::Path<String>, state: web::Data<AppState>) -> 
             ));
         }
     };
-    match state.engine.assess_document(&gathered.bundle, now, false, &gathered.failed) {
+    match state.engine.assess_document(&gathered.bundle, now, false, &gathered.failed, explain) {
         Ok(outcome) => {
             state.metrics.assessment(outcome.status, outcome.severity.unwrap_or("none"));
             tracing::info!(
@@ -455,7 +487,7 @@ async fn work_event(state: &AppState, job: &crate::notify::Job) -> Result<&'stat
     let gathered = client.gather(&patient, &codes, &since).await.map_err(|f| format!("{}: {}", f.what, f.how))?;
     let outcome = state
         .engine
-        .assess_document(&gathered.bundle, now, false, &gathered.failed)
+        .assess_document(&gathered.bundle, now, false, &gathered.failed, false)
         .map_err(|_| "the gathered data could not be assessed".to_owned())?;
     if !(state.write_back && crate::notify::worth_writing(&outcome.bundle)) {
         return Ok("assessed; nothing written");

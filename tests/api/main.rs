@@ -48,3 +48,6 @@ mod rule_tools;
 
 // Synthetic bundles (issue 8).
 mod synth;
+
+// The explain trace (issue 8).
+mod explain;

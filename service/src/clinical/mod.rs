@@ -5,6 +5,7 @@
 
 pub mod bands;
 pub mod causes;
+pub mod explain;
 pub mod facts;
 pub mod format;
 pub mod growth;

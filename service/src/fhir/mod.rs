@@ -6,5 +6,6 @@ pub mod outcome;
 pub mod profiles;
 pub mod read;
 pub mod write;
+pub mod write_explain;
 pub mod write_treatment;
 pub mod write_workup;

@@ -116,6 +116,7 @@ pub fn result_bundle(
     a: &Assessment,
     workup: Option<&Workup>,
     treatment: Option<&TreatmentPlan>,
+    explain: Option<&[crate::clinical::explain::Step]>,
 ) -> Value {
     let now = format_instant(ctx.now);
     let rules = &ctx.rules.rules;
@@ -287,6 +288,11 @@ pub fn result_bundle(
     targets.insert(0, json!({ "reference": urn("guidance"), "type": "GuidanceResponse" }));
     entries.insert(0, entry(urn("guidance"), gr));
     entries.push(entry(urn("outcome"), oo));
+
+    // The explain trace, when asked for.
+    if let Some(steps) = explain {
+        entries.push(entry(urn("explain"), super::write_explain::parameters(ctx, steps)));
+    }
 
     // The service as a Device, and Provenance.
     entries.push(json!({
