@@ -56,6 +56,7 @@ def main() -> int:
             "readiness on /readyz": c.get("readinessProbe", {}).get("httpGet", {}).get("path") == "/readyz",
             "startup probe": "startupProbe" in c,
             "listens on 0.0.0.0:8080": {"name": "CALCIUM_CDS_LISTEN", "value": "0.0.0.0:8080"} in c.get("env", []),
+            "workbench off in production": {"name": "CALCIUM_CDS_WORKBENCH", "value": "false"} in c.get("env", []),
         }
         for what, ok in checks.items():
             print(f"{'ok  ' if ok else 'FAIL'} Deployment: {what}")

@@ -76,6 +76,7 @@ async fn main() {
         limits: calcium_cds::config::LimitArgs::default(),
         auth: calcium_cds::config::InboundAuthArgs::default(),
         telemetry: calcium_cds::config::TelemetryArgs::default(),
+        workbench: false,
         config_file: None,
     };
     let app = calcium_cds::http::Application::build(&settings, engine).expect("the service starts");

@@ -164,6 +164,10 @@ pub struct ServeArgs {
     /// Trace export.
     #[command(flatten)]
     pub telemetry: TelemetryArgs,
+    /// Serve the browser workbench at /workbench (a page for informatics staff;
+    /// no patient data is stored). Turn it off in production.
+    #[arg(long = "workbench", env = "CALCIUM_CDS_WORKBENCH", default_value_t = true, action = clap::ArgAction::Set)]
+    pub workbench: bool,
     /// Configuration file (TOML, keys are the long option names, e.g. `listen`,
     /// `fhir-base-url`); command line and environment take precedence over it.
     #[arg(long = "config", env = "CALCIUM_CDS_CONFIG", value_name = "FILE")]

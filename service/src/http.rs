@@ -20,6 +20,7 @@ use serde_json::Value;
 use crate::config::ServeArgs;
 use crate::engine::{Engine, VERSION};
 use crate::fhir::outcome::{IssueCode, RequestError};
+use crate::workbench;
 
 /// FHIR JSON media type.
 pub const FHIR_JSON: &str = "application/fhir+json; charset=utf-8";
@@ -44,6 +45,8 @@ pub struct AppState {
     capability: Value,
     operation: Value,
     spans: Option<crate::otlp::Exporter>,
+    /// The workbench's scenarios (None: the workbench is off).
+    workbench: Option<crate::synth::Catalogue>,
 }
 
 /// A built, bound application.
@@ -95,6 +98,11 @@ impl Application {
             capability,
             operation,
             spans,
+            workbench: if settings.workbench {
+                Some(crate::synth::Catalogue::embedded().map_err(|e| e.0)?)
+            } else {
+                None
+            },
         });
         if state.queue.is_some() {
             let worker_state = state.clone();
@@ -121,6 +129,7 @@ impl Application {
             });
         }
         let data = web::Data::from(state.clone());
+        let workbench_on = state.workbench.is_some();
         let server = HttpServer::new(move || {
             App::new()
                 .app_data(data.clone())
@@ -136,6 +145,22 @@ impl Application {
                 .route("/readyz", web::get().to(readyz))
                 .route("/metrics", web::get().to(metrics_text))
                 .configure(bench_routes)
+                .configure(|cfg| {
+                    if workbench_on {
+                        cfg.route("/workbench", web::get().to(|| async { workbench::asset(workbench::Asset::Page) }))
+                            .route("/workbench/", web::get().to(|| async { workbench::asset(workbench::Asset::Page) }))
+                            .route(
+                                "/workbench/app.js",
+                                web::get().to(|| async { workbench::asset(workbench::Asset::Script) }),
+                            )
+                            .route(
+                                "/workbench/app.css",
+                                web::get().to(|| async { workbench::asset(workbench::Asset::Style) }),
+                            )
+                            .route("/workbench/scenarios", web::get().to(workbench_scenarios))
+                            .route("/workbench/synth", web::get().to(workbench_synth));
+                    }
+                })
                 .default_service(web::to(not_found))
         })
         .shutdown_timeout(settings.limits.shutdown_timeout_s)
@@ -551,6 +576,25 @@ async fn readyz(state: web::Data<AppState>) -> HttpResponse {
     }
 }
 
+async fn workbench_scenarios(state: web::Data<AppState>) -> HttpResponse {
+    match &state.workbench {
+        Some(cat) => HttpResponse::Ok().content_type("application/json").json(workbench::scenarios(cat)),
+        None => not_found_response(),
+    }
+}
+
+async fn workbench_synth(req: HttpRequest, state: web::Data<AppState>) -> HttpResponse {
+    let Some(cat) = &state.workbench else { return not_found_response() };
+    match workbench::synth(&state.engine, cat, req.query_string(), now_unix()) {
+        Ok(bundle) => fhir_response(StatusCode::OK, &bundle),
+        Err(e) => error_response(&e),
+    }
+}
+
+fn not_found_response() -> HttpResponse {
+    error_response(&RequestError::single(404, IssueCode::NotFound, "", "No such endpoint. See GET /fhir/metadata."))
+}
+
 async fn not_found(req: HttpRequest) -> HttpResponse {
     let path = req.path();
     let patient_assess = path.starts_with("/fhir/Patient/") && path.ends_with("/$assess");
@@ -558,6 +602,16 @@ async fn not_found(req: HttpRequest) -> HttpResponse {
         "/fhir/$assess" | "/notifications" => Some("POST"),
         _ if patient_assess => Some("POST"),
         "/fhir/metadata" | "/fhir/OperationDefinition/assess" | "/livez" | "/readyz" | "/metrics" => Some("GET"),
+        "/workbench"
+        | "/workbench/"
+        | "/workbench/app.js"
+        | "/workbench/app.css"
+        | "/workbench/scenarios"
+        | "/workbench/synth"
+            if req.app_data::<web::Data<AppState>>().is_some_and(|s| s.workbench.is_some()) =>
+        {
+            Some("GET")
+        }
         _ => None,
     };
     if let Some(allow) = allowed {
@@ -570,7 +624,7 @@ async fn not_found(req: HttpRequest) -> HttpResponse {
         res.headers_mut().insert(header::ALLOW, HeaderValue::from_static(allow));
         return res;
     }
-    error_response(&RequestError::single(404, IssueCode::NotFound, "", "No such endpoint. See GET /fhir/metadata."))
+    not_found_response()
 }
 
 static NEXT_ID: AtomicU64 = AtomicU64::new(1);

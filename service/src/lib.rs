@@ -23,3 +23,4 @@ pub mod synth;
 pub mod telemetry;
 pub mod trace;
 pub mod upstream;
+pub mod workbench;

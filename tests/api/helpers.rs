@@ -90,6 +90,7 @@ pub fn default_settings() -> ServeArgs {
         limits: calcium_cds::config::LimitArgs::default(),
         auth: calcium_cds::config::InboundAuthArgs::default(),
         telemetry: calcium_cds::config::TelemetryArgs::default(),
+        workbench: true,
         config_file: None,
     }
 }

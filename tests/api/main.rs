@@ -51,3 +51,6 @@ mod synth;
 
 // The explain trace (issue 8).
 mod explain;
+
+// The workbench routes (issue 8); the page itself: tests/workbench/e2e.mjs.
+mod workbench;

@@ -27,6 +27,7 @@ async fn spawn(upstream: Option<&MockServer>, queue_capacity: usize) -> App {
         limits: calcium_cds::config::LimitArgs::default(),
         auth: calcium_cds::config::InboundAuthArgs::default(),
         telemetry: calcium_cds::config::TelemetryArgs::default(),
+        workbench: false,
         config_file: None,
     };
     let app = calcium_cds::http::Application::build(&settings, engine).unwrap();
