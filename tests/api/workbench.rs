@@ -46,7 +46,7 @@ async fn scenarios_are_listed_and_a_synthetic_bundle_is_r4_valid_and_assessable(
     let bundle: Value = r.json().await.unwrap();
     assert_r4_valid(&bundle);
     let result = app.assess_ok(&bundle).await;
-    assert_eq!(crate::helpers::guidance_status(&result).is_empty(), false);
+    assert_eq!(crate::helpers::guidance_status(&result), "success");
     // Bad parameters: 400 naming the parameter; an unknown scenario too.
     for (q, element) in [
         ("scenario=vitamin-d-deficiency&age=twelve", "age"),
