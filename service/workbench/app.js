@@ -270,6 +270,16 @@
 
   // ---- assess ------------------------------------------------------------
 
+  // A request assessed as of a given time: a Bundle goes into Parameters with `bundle` and
+  // `now` parts; a Parameters resource gets its `now` part set.
+  function withClock(doc, when) {
+    const now = { name: 'now', valueDateTime: when };
+    if (doc && doc.resourceType === 'Parameters' && Array.isArray(doc.parameter)) {
+      return Object.assign({}, doc, { parameter: doc.parameter.filter((p) => p.name !== 'now').concat([now]) });
+    }
+    return { resourceType: 'Parameters', parameter: [{ name: 'bundle', resource: doc }, now] };
+  }
+
   async function assess() {
     const status = $('request-status');
     const text = $('request-json').value;
@@ -286,10 +296,12 @@
     document.body.setAttribute('data-state', 'busy');
     try {
       // The text is sent as typed: the service, not this page, decides what it accepts.
+      // With an evaluation time, a parsed request is wrapped in (or given) a `now` part.
+      const evalTime = $('eval-time').value.trim();
       const resp = await fetch(ASSESS_URL, {
         method: 'POST',
         headers: { 'Content-Type': FHIR_JSON, Accept: FHIR_JSON },
-        body: text,
+        body: evalTime && requestDoc ? JSON.stringify(withClock(requestDoc, evalTime)) : text,
       });
       const body = await resp.text();
       let doc = null;

@@ -502,6 +502,27 @@ async function main() {
       await page.fill('#synth-age', '18mo');
     });
 
+    // -- a saved case, assessed as of its own clock -----------------------------------
+    await pageCheck('a saved case pasted as it is, with its evaluation time, is assessed as of that time', async () => {
+      // tests/cases/safety-digoxin-toddler.json is a plain Bundle dated 2026-11-30; its
+      // expectation's now is 2026-11-30T15:00:00Z. Without the clock its results would be
+      // judged against the real clock.
+      const file = path.join(REPO, 'tests', 'cases', 'safety-digoxin-toddler.json');
+      await page.fill('#request-json', fs.readFileSync(file, 'utf8'));
+      await page.fill('#eval-time', EXAMPLE_NOW);
+      const state = await runAssess(page);
+      assert(state === 'assessed', `page state ${state}`);
+      const t = await text(page, '#result');
+      assert(/0\.82/.test(t) && /digoxin/i.test(t), 'the case result is not shown');
+      // The clock really is sent: five days later the same calcium is too old to judge.
+      await page.fill('#eval-time', '2026-12-05T15:00:00Z');
+      const later = await runAssess(page);
+      await page.fill('#eval-time', '');
+      const t2 = await text(page, '#result');
+      assert(later === 'assessed' && /older than 72 h/.test(t2) && !/Severity\s*High/.test(t2), 'a later clock changed nothing');
+      return 'digoxin case as of 2026-11-30T15:00:00Z, then as of 2026-12-05';
+    });
+
     // -- refusals ------------------------------------------------------------------
     await pageCheck('a Bundle without type is refused, showing the issue and its element', async () => {
       await page.fill('#request-json', '{"resourceType":"Bundle"}');
