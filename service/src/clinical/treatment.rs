@@ -759,6 +759,20 @@ fn safety_always(_rules: &RuleSet, facts: &Facts, finding: &CalciumFinding, _ctx
     }
 }
 
+/// The calcium x phosphate product limit for the age and its source: the span the
+/// whole age interval lies in, or, when the age straddles a boundary, the lowest
+/// limit of the spans it may lie in. `None` when no span applies.
+fn ca_x_p_limit<'r>(rules: &'r RuleSet, ctx: &Context) -> Option<(f64, &'r str)> {
+    let limits = &rules.treatment.safety.ca_x_p_limits;
+    let of = |l: &crate::rules::treatment_model::LimitByAge| {
+        rules.safety_sources.get(&l.safety_source).and_then(|s| Some((s.threshold?, s.source.as_str())))
+    };
+    if let Some(l) = limits.iter().find(|l| ctx.within(&l.applies) == Some(true)) {
+        return of(l);
+    }
+    limits.iter().filter(|l| ctx.within(&l.applies).is_none()).filter_map(of).min_by(|a, b| a.0.total_cmp(&b.0))
+}
+
 /// Checks tied to IV calcium being proposed.
 fn fact<'r>(rules: &'r RuleSet, key: &str) -> (&'r str, Option<f64>) {
     rules.safety_sources.get(key).map_or(("(safety source missing)", None), |s| (s.source.as_str(), s.threshold))
@@ -913,10 +927,9 @@ fn safety_with_proposals(
             let ca_mass = rules.analyte(Analyte::CalciumTotal).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
             let p_mass = rules.analyte(Analyte::Phosphate).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
             let product = (ca.value * ca_mass / 10.0) * (p.value * p_mass / 10.0);
-            let key = if ctx.age_max.years < 12 { "ca_x_p_under_12y" } else { "ca_x_p_over_12y" };
-            let (caxp_source, limit) = fact(rules, key);
-            let limit = limit.unwrap_or(f64::INFINITY);
-            if product > limit {
+            if let Some((limit, caxp_source)) = ca_x_p_limit(rules, ctx)
+                && product > limit
+            {
                 plan.issues.push(SafetyIssue {
                     key: "caxp",
                     act_code: None,
@@ -1125,6 +1138,30 @@ mod tests {
         assert!((from_label - from_formula).abs() / from_formula < 0.01, "{from_label} vs {from_formula}");
         assert!(c.text.contains("Central line only"));
         assert!(!p.issues.iter().any(|i| i.key == "extravasation"));
+    }
+
+    fn phosphate_mg(mg_dl: f64, id: &str) -> Measurement {
+        m(Analyte::Phosphate, mg_dl * 10.0 / 30.974, "mmol/L", (mg_dl, "mg/dL"), 1, id)
+    }
+
+    #[test]
+    fn caxp_limit_is_65_through_age_12_and_55_from_13() {
+        // Total calcium 8.0 mg/dL x phosphate 7.5 mg/dL = 60 mg2/dL2: within the
+        // < 65 limit for children 12 years and younger, above the < 55 limit for
+        // adolescents older than 12 (KDOQI 7.5). Weights near the median for the age.
+        let r = rules();
+        for (years, kg, fires) in [(12, 40.0, false), (13, 45.0, true)] {
+            let m = vec![ionized(0.85, 1, "ica"), total_mg(8.0, 1, "tca"), phosphate_mg(7.5, "p"), weight(kg)];
+            let facts = facts_of(born_days_ago(years * 365 + 100), Gender::Female, m, vec![]);
+            let a = status::assess(&facts, &r);
+            let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+            assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"), "{years} y");
+            let issue = p.issues.iter().find(|i| i.key == "caxp");
+            assert_eq!(issue.is_some(), fires, "{years} y: {:?}", issue.map(|i| &i.detail));
+            if let Some(i) = issue {
+                assert!(i.detail.contains("= 60 mg2/dL2, above 55 ("), "{}", i.detail);
+            }
+        }
     }
 
     mod properties {

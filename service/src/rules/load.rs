@@ -366,12 +366,16 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
             }
         }
     }
-    for l in &t.oral.daily_limits {
-        if rules.safety_sources.get(&l.safety_source).and_then(|s| s.threshold).is_none() {
-            problems.push(format!(
-                "  treatment.oral.daily_limits: safety source '{}' with a threshold is missing",
-                l.safety_source
-            ));
+    let limit_lists = [("oral.daily_limits", &t.oral.daily_limits), ("safety.ca_x_p_limits", &t.safety.ca_x_p_limits)];
+    for (at, limits) in limit_lists {
+        if limits.is_empty() {
+            problems.push(format!("  treatment.{at}: no limits"));
+        }
+        for l in limits {
+            if rules.safety_sources.get(&l.safety_source).and_then(|s| s.threshold).is_none() {
+                problems
+                    .push(format!("  treatment.{at}: safety source '{}' with a threshold is missing", l.safety_source));
+            }
         }
     }
     for key in [
@@ -381,8 +385,6 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
         "extravasation_calcinosis",
         "no_intra_arterial_or_uac",
         "neonatal_bradycardia_stop",
-        "ca_x_p_under_12y",
-        "ca_x_p_over_12y",
         "calcium_chloride_rate_and_vein",
     ] {
         if !rules.safety_sources.contains_key(key) {
@@ -526,6 +528,23 @@ mod tests {
         let site = "[treatment.bolus]\nalso_shown = [\"us_label_ca_gluconate_neonate_infusion\"]\n";
         let err = load(Some(("site.toml", site))).unwrap_err();
         assert!(err.to_string().contains("is a infusion range, not bolus"), "{err}");
+    }
+
+    /// The merged default documents, to break one value at a time.
+    fn default_document() -> Value {
+        let mut doc = Value::Object(serde_json::Map::new());
+        for (name, text) in DEFAULT_FILES {
+            merge(&mut doc, parse_toml(name, text).unwrap(), "");
+        }
+        doc
+    }
+
+    #[test]
+    fn a_caxp_limit_without_a_threshold_is_inconsistent() {
+        let mut doc = default_document();
+        doc["safety_sources"]["ca_x_p_under_12y"].as_object_mut().unwrap().remove("threshold");
+        let err = from_document(doc).unwrap_err();
+        assert!(err.to_string().contains("treatment.safety.ca_x_p_limits: safety source 'ca_x_p_under_12y'"), "{err}");
     }
 
     #[test]

@@ -286,6 +286,11 @@ pub struct VitaminDPolicy {
 pub struct SafetyPolicy {
     /// Why dextrose is preferred over saline as diluent.
     pub saline_source: String,
+    /// Calcium x phosphate product limits by age: the `safety_sources` entry whose
+    /// threshold applies at each age.
+    pub ca_x_p_limits: Vec<LimitByAge>,
+    /// Source of the age split between the limits.
+    pub ca_x_p_age_source: String,
 }
 
 /// A published safety fact.
