@@ -449,14 +449,16 @@ fn infusion(
         num_trim(conc)
     );
     let mut text = format!(
-        "{} kg x {} mg/kg/h = {} mg/h; at {} mg/mL ({}; {} mL of {} made up to each 10 mL with diluent) = {} mL/h, rounded to the pump's {} mL/h ({}) = {} mg/h. Over 24 h: {} mg. {}",
+        "{} kg x {} mg/kg/h = {} mg/h; at {} mg/mL ({}; {} mL of {} made up to each {} mL with diluent, {}) = {} mL/h, rounded to the pump's {} mL/h ({}) = {} mg/h. Over 24 h: {} mg. {}",
         num_trim(w.kg),
         num_trim(per_kg_h),
         num_trim(mg_h),
         num_trim(conc),
         dilution_text,
-        num_trim(10.0 * conc / per_ml),
+        num_trim(inf.makeup_ml * conc / per_ml),
         p.label,
+        num_trim(inf.makeup_ml),
+        inf.makeup_source,
         num_trim(mg_h / conc),
         num_trim(inf.pump_resolution_ml_per_h),
         inf.pump_source,
@@ -515,7 +517,8 @@ fn infusion(
 fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     let ch = &rules.treatment.chloride;
     let (rate_source, rate) = fact(rules, "calcium_chloride_rate_and_vein");
-    let max_rate_ml_per_min = rate.unwrap_or(1.0);
+    // The loader refuses rules without this rate limit; without one, no chloride is proposed.
+    let max_rate_ml_per_min = rate.filter(|r| *r > 0.0)?;
     let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &ch.chosen, &ch.product)?;
     let minutes = (ml / max_rate_ml_per_min).max(1.0);
     let phrase = dose_phrase(raw, dose, &cap, "mg");
@@ -827,9 +830,10 @@ fn safety_with_proposals(
             });
         }
         let ceftriaxone = any_events(facts, "ceftriaxone");
+        // The loader refuses rules without this threshold; were it missing, warn at any age.
         let (cef_source, cef_days) = fact(rules, "ceftriaxone_neonate_contraindication");
-        let cef_days = cef_days.unwrap_or(28.0) as i64;
-        if !ceftriaxone.is_empty() && ctx.age_max.days <= cef_days {
+        if !ceftriaxone.is_empty() && cef_days.is_none_or(|d| ctx.age_max.days as f64 <= d) {
+            let cef_days = cef_days.map_or_else(|| "(missing)".to_owned(), num_trim);
             plan.issues.push(SafetyIssue {
                 key: "ceftriaxone",
                 act_code: Some(("DRG", "Drug Interaction Alert")),
@@ -1162,6 +1166,49 @@ mod tests {
                 assert!(i.detail.contains("= 60 mg2/dL2, above 55 ("), "{}", i.detail);
             }
         }
+    }
+
+    /// A medication record in a code list, `hours_ago` before now.
+    fn med(list: &str, resource_type: &str, hours_ago: i64, in_progress: bool, id: &str) -> CodedEvent {
+        let mut e = event(EventKind::Medication, list, hours_ago, id);
+        e.source.resource_type = resource_type.into();
+        e.in_progress = in_progress;
+        e
+    }
+
+    #[test]
+    fn infusion_make_up_volume_is_rule_data() {
+        // 10 mg/mL from 100 mg/mL: 1 mL per 10 mL by default, 2 mL per 20 mL when the site says 20.
+        let mut r = rules();
+        let text = |r: &RuleSet| find(&run(r, seven(), 0.85, Some(22.0)), "calcium-infusion").text.clone();
+        assert!(text(&r).contains("1 mL of Calcium gluconate"), "{}", text(&r));
+        r.treatment.infusion.makeup_ml = 20.0;
+        let t = text(&r);
+        assert!(t.contains("2 mL of ") && t.contains("made up to each 20 mL with diluent"), "{t}");
+    }
+
+    #[test]
+    fn no_chloride_without_its_rate_limit_and_ceftriaxone_warns_without_its_age() {
+        // The loader refuses these rules; the core still does not fall back to a number.
+        let mut r = rules();
+        r.safety_sources.get_mut("calcium_chloride_rate_and_vein").unwrap().threshold = None;
+        r.safety_sources.get_mut("ceftriaxone_neonate_contraindication").unwrap().threshold = None;
+        let mut facts = facts_of(
+            seven(),
+            Gender::Female,
+            vec![ionized(0.85, 1, "ica"), weight(22.0)],
+            vec![med("ceftriaxone", "MedicationAdministration", 2, false, "c")],
+        );
+        facts.vascular_access = VascularAccess::Central;
+        let a = status::assess(&facts, &r);
+        let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+        assert!(p.proposals.iter().all(|x| x.key != "calcium-chloride"));
+        assert!(p.issues.iter().any(|i| i.key == "ceftriaxone"), "a 7-year-old, but no age limit to clear it");
+        // With the rules as shipped: chloride proposed, no ceftriaxone issue at 7 years.
+        let r = rules();
+        let p = plan(&r, &facts, &status::assess(&facts, &r).finding.unwrap(), None).unwrap();
+        assert!(p.proposals.iter().any(|x| x.key == "calcium-chloride"));
+        assert!(!p.issues.iter().any(|i| i.key == "ceftriaxone"));
     }
 
     mod properties {

@@ -391,6 +391,19 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
             problems.push(format!("  safety_sources: '{key}' is read by the safety checks and is missing"));
         }
     }
+    // Thresholds the checks compute with: present, positive and in the unit the code assumes.
+    for (key, unit) in [("ceftriaxone_neonate_contraindication", "d"), ("calcium_chloride_rate_and_vein", "mL/min")] {
+        let Some(s) = rules.safety_sources.get(key) else { continue };
+        if !s.threshold.is_some_and(|t| t > 0.0) || s.unit.as_deref() != Some(unit) {
+            problems.push(format!(
+                "  safety_sources.{key}: the safety checks need a positive threshold in '{unit}' (got {:?} {:?})",
+                s.threshold, s.unit
+            ));
+        }
+    }
+    if !t.infusion.makeup_ml.is_finite() || t.infusion.makeup_ml <= 0.0 {
+        problems.push(format!("  treatment.infusion.makeup_ml: {} is not positive", t.infusion.makeup_ml));
+    }
     for id in ["digoxin", "sodium_bicarbonate", "ceftriaxone", "calcium_preparations", "phosphate_preparations"] {
         if !rules.code_lists.iter().any(|l| l.id == id) {
             problems.push(format!("  code_lists: '{id}' is read by the safety checks and is missing"));
@@ -537,6 +550,22 @@ mod tests {
             merge(&mut doc, parse_toml(name, text).unwrap(), "");
         }
         doc
+    }
+
+    #[test]
+    fn a_missing_or_unitless_safety_threshold_is_inconsistent() {
+        for (key, field) in [
+            ("ceftriaxone_neonate_contraindication", "threshold"),
+            ("calcium_chloride_rate_and_vein", "threshold"),
+            ("ceftriaxone_neonate_contraindication", "unit"),
+            ("calcium_chloride_rate_and_vein", "unit"),
+        ] {
+            let mut doc = default_document();
+            doc["safety_sources"][key].as_object_mut().unwrap().remove(field);
+            let err = from_document(doc).unwrap_err();
+            assert!(matches!(err, RuleError::Inconsistent(_)), "{key}.{field}: {err}");
+            assert!(err.to_string().contains(&format!("safety_sources.{key}: the safety checks need")), "{err}");
+        }
     }
 
     #[test]

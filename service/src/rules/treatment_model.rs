@@ -196,6 +196,11 @@ pub struct InfusionPolicy {
     pub pump_resolution_ml_per_h: f64,
     /// Source.
     pub pump_source: String,
+    /// The make-up volume the preparation is described in, mL (so much product made
+    /// up to this volume with diluent).
+    pub makeup_ml: f64,
+    /// Source of the make-up volume.
+    pub makeup_source: String,
     /// Monitoring and stop text.
     pub monitoring: String,
 }
