@@ -501,6 +501,51 @@ async fn sodium_bicarbonate_with_iv_calcium_warns_of_precipitation() {
     assert!(safety(&result, "Sodium bicarbonate").is_empty(), "{:?}", issue_titles(&result));
 }
 
+/// A MedicationAdministration in the named ATC code, `hours_ago` before now.
+fn given(s: &Scenario, id: &str, code: &str, display: &str, status: &str, hours_ago: f64) -> Value {
+    let mut ma = json!({
+        "resourceType": "MedicationAdministration", "id": id, "status": status,
+        "medicationCodeableConcept": { "coding": [{ "system": ATC, "code": code, "display": display }] },
+        "subject": { "reference": PATIENT_URL },
+    });
+    if status == "in-progress" {
+        ma["effectivePeriod"] = json!({ "start": s.time(hours_ago) });
+    } else {
+        ma["effectiveDateTime"] = json!(s.time(hours_ago));
+    }
+    ma
+}
+
+#[tokio::test]
+async fn only_current_digoxin_and_bicarbonate_are_flagged() {
+    let app = spawn_app().await;
+    // Digoxin: an order completed, written 60 days ago, and a dose given 30 days ago are
+    // past the 14-day window; a dose 2 days ago is not.
+    for (status, hours, fires) in [("completed", 60.0 * 24.0, false), ("completed", 2.0 * 24.0, true)] {
+        let s = symptomatic(aged(6, 60), 20.0);
+        let mut mr = medication_request(&s, "mr-digoxin", ATC, "C01AA05", "digoxin");
+        mr["status"] = json!(status);
+        mr["authoredOn"] = json!(s.time(hours));
+        let ma = given(&s, "ma-digoxin", "C01AA05", "digoxin", "completed", 30.0 * 24.0);
+        let result = app.assess_ok(&s.with(mr).with(ma).bundle()).await;
+        assert_eq!(!safety(&result, "Digoxin").is_empty(), fires, "{status} {hours} h: {:?}", issue_titles(&result));
+    }
+    // Sodium bicarbonate: given 20 days ago, no; 1 hour ago, or running, yes.
+    for (status, hours, fires) in
+        [("completed", 20.0 * 24.0, false), ("completed", 1.0, true), ("in-progress", 10.0, true)]
+    {
+        let s = symptomatic(aged(6, 60), 20.0);
+        let ma = given(&s, "ma-bicarb", "B05XA02", "sodium bicarbonate", status, hours);
+        let result = app.assess_ok(&s.with(ma).bundle()).await;
+        assert_eq!(
+            !safety(&result, "Sodium bicarbonate").is_empty(),
+            fires,
+            "{status} {hours} h: {:?}",
+            issue_titles(&result)
+        );
+    }
+}
+
 #[tokio::test]
 async fn ceftriaxone_is_flagged_in_a_neonate_not_in_a_two_month_old() {
     let app = spawn_app().await;

@@ -17,7 +17,7 @@ use super::growth;
 use super::status::{CalciumFinding, Classification};
 use super::workup::Workup;
 use crate::rules::model::{IssueSeverity, LabOutcome, RuleSet};
-use crate::rules::treatment_model::{Chosen, DoseSource, Pick, Product};
+use crate::rules::treatment_model::{Chosen, DoseSource, Pick, Product, RecencyWindow};
 
 /// The dosing weight, or why there is none.
 #[derive(Debug, Clone)]
@@ -732,6 +732,35 @@ fn any_events(facts: &Facts, list: &str) -> Vec<Source> {
         .collect()
 }
 
+/// Medications in a list that count as current: running (an administration in
+/// progress, an active MedicationRequest), or given, taken or ordered within the
+/// window before the evaluation time. A MedicationStatement counts whatever its
+/// date: the facts do not say whether it is active or completed, and an active
+/// statement of a long-running drug carries the date it was started. An undated
+/// record counts too: it cannot be shown to be old.
+fn current_events(facts: &Facts, list: &str, window: &RecencyWindow) -> Vec<Source> {
+    let window_s = (window.hours * 3600.0).round() as i64;
+    events_in(facts, list, EventKind::Medication)
+        .into_iter()
+        .filter(|e| {
+            e.in_progress
+                || e.source.resource_type == "MedicationStatement"
+                || e.when.is_none_or(|w| facts.now - w.latest <= window_s)
+        })
+        .map(|e| e.source.clone())
+        .collect()
+}
+
+/// "a running administration or active order, or one in the last 4 h (source)".
+fn window_text(w: &RecencyWindow) -> String {
+    let hours = if w.hours >= 48.0 && (w.hours / 24.0).fract() == 0.0 {
+        format!("{} days", num_trim(w.hours / 24.0))
+    } else {
+        format!("{} h", num_trim(w.hours))
+    };
+    format!("counted when running, active or recorded in the last {hours} ({})", w.source)
+}
+
 /// Checks that apply whatever is proposed.
 fn safety_always(_rules: &RuleSet, facts: &Facts, finding: &CalciumFinding, _ctx: &Context, plan: &mut TreatmentPlan) {
     // An infusion running while calcium is already normal.
@@ -791,19 +820,23 @@ fn safety_with_proposals(
     let s = &rules.treatment.safety;
     let iv_calcium = plan.proposals.iter().any(|p| p.route == Route::Iv && p.key.starts_with("calcium"));
     if iv_calcium {
-        let digoxin = any_events(facts, "digoxin");
+        let digoxin = current_events(facts, "digoxin", &s.digoxin_current);
         if !digoxin.is_empty() {
             plan.issues.push(SafetyIssue {
                 key: "digoxin",
                 act_code: Some(("DRG", "Drug Interaction Alert")),
                 severity: IssueSeverity::High,
                 title: "Digoxin with IV calcium".into(),
-                detail: format!("Digoxin is active: raised calcium enhances digoxin and can cause arrhythmias ({}).", fact(rules, "digoxin").0),
+                detail: format!(
+                    "Digoxin is current ({}): raised calcium enhances digoxin and can cause arrhythmias ({}).",
+                    window_text(&s.digoxin_current),
+                    fact(rules, "digoxin").0
+                ),
                 implicated: digoxin,
                 mitigation: "If calcium must be given, give it slowly, in small amounts, with continuous ECG monitoring.".into(),
             });
         }
-        let mut precip = any_events(facts, "sodium_bicarbonate");
+        let mut precip = current_events(facts, "sodium_bicarbonate", &s.bicarbonate_current);
         precip.extend(
             facts
                 .events
@@ -822,8 +855,9 @@ fn safety_with_proposals(
                 severity: IssueSeverity::High,
                 title: "Sodium bicarbonate or phosphate with IV calcium".into(),
                 detail: format!(
-                    "Calcium precipitates with bicarbonate and phosphate ({}).",
-                    fact(rules, "phosphate_bicarbonate_precipitation").0
+                    "Calcium precipitates with bicarbonate and phosphate ({}). Sodium bicarbonate is {}; phosphate when running.",
+                    fact(rules, "phosphate_bicarbonate_precipitation").0,
+                    window_text(&s.bicarbonate_current)
                 ),
                 implicated: precip,
                 mitigation: "Never give them through the same line; flush thoroughly, or use a separate line.".into(),
@@ -1174,6 +1208,60 @@ mod tests {
         e.source.resource_type = resource_type.into();
         e.in_progress = in_progress;
         e
+    }
+
+    /// The IV calcium plan for a 7-year-old of 22 kg (ionized 0.85: bolus) with these records.
+    fn iv_plan_with(events: Vec<CodedEvent>) -> TreatmentPlan {
+        let r = rules();
+        let facts = facts_of(seven(), Gender::Female, vec![ionized(0.85, 1, "ica"), weight(22.0)], events);
+        let a = status::assess(&facts, &r);
+        let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+        assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"));
+        p
+    }
+
+    #[test]
+    fn only_current_digoxin_is_flagged() {
+        // The window is 14 days (336 h, treatment.safety.digoxin_current).
+        let day = 24;
+        for (what, e, fires) in [
+            (
+                "an order completed, written 60 days ago",
+                med("digoxin", "MedicationRequest", 60 * day, false, "a"),
+                false,
+            ),
+            ("an administration 60 days ago", med("digoxin", "MedicationAdministration", 60 * day, false, "b"), false),
+            ("an administration 15 days ago", med("digoxin", "MedicationAdministration", 15 * day, false, "c"), false),
+            ("an active order written 60 days ago", med("digoxin", "MedicationRequest", 60 * day, true, "d"), true),
+            ("an administration 2 days ago", med("digoxin", "MedicationAdministration", 2 * day, false, "e"), true),
+            (
+                "a statement (status not in the facts) 60 days ago",
+                med("digoxin", "MedicationStatement", 60 * day, false, "f"),
+                true,
+            ),
+        ] {
+            let p = iv_plan_with(vec![e]);
+            let issue = p.issues.iter().find(|i| i.key == "digoxin");
+            assert_eq!(issue.is_some(), fires, "{what}");
+            if let Some(i) = issue {
+                assert_eq!(i.severity, IssueSeverity::High);
+                assert!(i.detail.contains("recorded in the last 14 days (Project decision"), "{}", i.detail);
+            }
+        }
+    }
+
+    #[test]
+    fn only_current_sodium_bicarbonate_is_flagged() {
+        // The window is 4 h (treatment.safety.bicarbonate_current).
+        for (what, e, fires) in [
+            ("given 20 days ago", med("sodium_bicarbonate", "MedicationAdministration", 20 * 24, false, "a"), false),
+            ("given 5 h ago", med("sodium_bicarbonate", "MedicationAdministration", 5, false, "b"), false),
+            ("given 1 h ago", med("sodium_bicarbonate", "MedicationAdministration", 1, false, "c"), true),
+            ("running, started 10 h ago", med("sodium_bicarbonate", "MedicationAdministration", 10, true, "d"), true),
+        ] {
+            let p = iv_plan_with(vec![e]);
+            assert_eq!(p.issues.iter().any(|i| i.key == "precipitation"), fires, "{what}");
+        }
     }
 
     #[test]

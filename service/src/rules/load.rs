@@ -401,6 +401,13 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
             ));
         }
     }
+    for (at, w) in
+        [("digoxin_current", &t.safety.digoxin_current), ("bicarbonate_current", &t.safety.bicarbonate_current)]
+    {
+        if !w.hours.is_finite() || w.hours <= 0.0 {
+            problems.push(format!("  treatment.safety.{at}.hours: {} is not positive", w.hours));
+        }
+    }
     if !t.infusion.makeup_ml.is_finite() || t.infusion.makeup_ml <= 0.0 {
         problems.push(format!("  treatment.infusion.makeup_ml: {} is not positive", t.infusion.makeup_ml));
     }

@@ -296,6 +296,21 @@ pub struct SafetyPolicy {
     pub ca_x_p_limits: Vec<LimitByAge>,
     /// Source of the age split between the limits.
     pub ca_x_p_age_source: String,
+    /// When a recorded digoxin counts as current.
+    pub digoxin_current: RecencyWindow,
+    /// When a recorded sodium bicarbonate counts as current.
+    pub bicarbonate_current: RecencyWindow,
+}
+
+/// A medication counts as current for a safety check when it is running (an
+/// administration in progress, an active order) or was recorded within this window.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RecencyWindow {
+    /// Hours before the evaluation time.
+    pub hours: f64,
+    /// Source.
+    pub source: String,
 }
 
 /// A published safety fact.
