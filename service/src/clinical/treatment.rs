@@ -1299,6 +1299,31 @@ mod tests {
         assert!(!p.issues.iter().any(|i| i.key == "ceftriaxone"));
     }
 
+    #[test]
+    fn no_local_file_paths_in_formulary_sources() {
+        // Sources name the publication or label, never a file on a workstation.
+        let r = rules();
+        let mut texts: Vec<(String, &str)> = Vec::new();
+        for d in &r.dose_sources {
+            texts.push((format!("dose_sources.{}", d.id), &d.source));
+            texts.extend(d.note.as_deref().map(|n| (format!("dose_sources.{}.note", d.id), n)));
+        }
+        for p in &r.products {
+            texts.push((format!("products.{}", p.id), &p.source));
+            texts.extend(p.note.as_deref().map(|n| (format!("products.{}.note", p.id), n)));
+        }
+        for (k, f) in &r.safety_sources {
+            texts.extend([
+                (format!("safety_sources.{k}"), f.source.as_str()),
+                (format!("safety_sources.{k}.text"), &f.text),
+            ]);
+            texts.extend(f.note.as_deref().map(|n| (format!("safety_sources.{k}.note"), n)));
+        }
+        for (at, text) in texts {
+            assert!(!text.contains("/work/") && !text.contains("shared/reference"), "{at}: {text}");
+        }
+    }
+
     mod properties {
         use proptest::prelude::*;
 
