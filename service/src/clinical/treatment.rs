@@ -17,7 +17,7 @@ use super::growth;
 use super::status::{CalciumFinding, Classification};
 use super::workup::Workup;
 use crate::rules::model::{IssueSeverity, LabOutcome, RuleSet};
-use crate::rules::treatment_model::{Chosen, DoseSource, Pick, Product, RecencyWindow};
+use crate::rules::treatment_model::{Chosen, DoseSource, OralPolicy, Pick, Product, RecencyWindow};
 
 /// The dosing weight, or why there is none.
 #[derive(Debug, Clone)]
@@ -308,7 +308,7 @@ pub fn plan(
                 } else {
                     plan.notes.push("Calcium chloride is not proposed: it is for a central line only (it irritates veins and causes necrosis if it extravasates), and no central line is recorded.".into());
                 }
-            } else if let Some(p) = oral(rules, &ctx, w) {
+            } else if let Some(p) = oral(rules, &ctx, w, &mut plan.issues) {
                 plan.notes.push("Asymptomatic and not severe: oral calcium, no IV calcium.".into());
                 plan.proposals.push(p);
             }
@@ -548,7 +548,73 @@ fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     })
 }
 
-fn oral(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
+/// A measurable amount of one oral product for a dose.
+struct Measured<'r> {
+    p: &'r Product,
+    /// Units (mL or tablets) per dose.
+    amount: f64,
+    /// Elemental mg per dose.
+    mg: f64,
+    /// "mL", "tablet", "tablets".
+    unit_text: String,
+}
+
+impl Measured<'_> {
+    /// Percent above (+) or below (-) the computed dose.
+    fn off_pct(&self, per_dose: f64) -> f64 {
+        (self.mg / per_dose - 1.0) * 100.0
+    }
+
+    fn describe(&self, per_dose: f64) -> String {
+        let off = self.off_pct(per_dose);
+        format!(
+            "{} {} of {} = {} mg, {}% {} the dose",
+            num_trim(self.amount),
+            self.unit_text,
+            self.p.label,
+            num_trim(self.mg),
+            num_trim(off.abs().round()),
+            if off >= 0.0 { "above" } else { "below" }
+        )
+    }
+}
+
+/// The measurable amount of `p` nearest `per_dose` (elemental mg): to the product's
+/// step (mL step for liquids, the parts a tablet splits into), stepped down while it
+/// is above the tolerance or `doses` of it pass the daily cap. `Err` with the smallest
+/// measurable amount (one step) when not even that fits; `None` without a strength.
+fn measure<'r>(
+    o: &OralPolicy,
+    p: &'r Product,
+    per_dose: f64,
+    doses: f64,
+    cap: f64,
+) -> Option<Result<Measured<'r>, Measured<'r>>> {
+    let per_unit = p.elemental_mg.filter(|v| *v > 0.0)?;
+    let liquid = p.strength_per == "mL";
+    let step = if liquid { o.liquid_round_ml } else { 1.0 / f64::from(p.divisible_into.unwrap_or(1).max(1)) };
+    if step <= 0.0 {
+        return None;
+    }
+    let of = |amount: f64| {
+        let unit_text = if liquid {
+            "mL".to_owned()
+        } else if (amount - 1.0).abs() > 1e-9 {
+            format!("{}s", p.strength_per)
+        } else {
+            p.strength_per.clone()
+        };
+        Measured { p, amount, mg: amount * per_unit, unit_text }
+    };
+    let highest = per_dose * (1.0 + o.rounding_tolerance_pct / 100.0);
+    let mut amount = round_to(per_dose / per_unit, step);
+    while amount > 0.0 && (amount * per_unit > highest + 1e-9 || amount * per_unit * doses > cap + 1e-9) {
+        amount = round_to(amount - step, step);
+    }
+    Some(if amount < step - 1e-9 { Err(of(step)) } else { Ok(of(amount)) })
+}
+
+fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, issues: &mut Vec<SafetyIssue>) -> Option<MedProposal> {
     let o = &rules.treatment.oral;
     let c = chosen(ctx, &o.chosen)?;
     let d = dose_source(rules, &c.dose_source)?;
@@ -556,8 +622,6 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         from: o.tablets_from,
         until: crate::rules::model::AgeBound { value: 200, unit: crate::rules::model::AgeUnit::Years },
     }) == Some(true);
-    let p = product(rules, if tablets { &o.tablet_product } else { &o.liquid_product })?;
-    let per_unit = p.elemental_mg?;
     let per_kg_day = pick(d, c.pick);
     let raw_day = w.kg * per_kg_day;
     let limit = o
@@ -568,21 +632,33 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         .and_then(|s| Some((s.threshold?, s.source.as_str())));
     let cap = limit.map_or(f64::INFINITY, |l| l.0);
     let day = raw_day.min(cap);
-    let per_dose = day / f64::from(o.doses_per_day);
-    // The measurable amount nearest the dose, stepped down when rounding up would
-    // pass the daily cap.
     let doses = f64::from(o.doses_per_day);
-    let (step, unit_text) = if p.strength_per == "mL" {
-        (o.liquid_round_ml, "mL".to_owned())
+    let per_dose = day / doses;
+    // The products in the order tried: from the tablet age the site's tablet, then its
+    // other tablets, then the liquid; under it the liquid only. The first whose
+    // measurable amount is within the tolerance of the dose is proposed.
+    let ids: Vec<&String> = if tablets {
+        std::iter::once(&o.tablet_product)
+            .chain(&o.other_tablet_products)
+            .chain(std::iter::once(&o.liquid_product))
+            .collect()
     } else {
-        (1.0 / f64::from(p.divisible_into.unwrap_or(1).max(1)), p.strength_per.clone())
+        vec![&o.liquid_product]
     };
-    let mut amount = round_to(per_dose / per_unit, step).max(step);
-    while amount > step && amount * per_unit * doses > cap + 1e-9 {
-        amount -= step;
+    let products: Vec<&Product> = ids.into_iter().filter_map(|id| product(rules, id)).collect();
+    let tolerance = o.rounding_tolerance_pct;
+    let mut not_used: Vec<String> = Vec::new();
+    let mut fit = None;
+    for p in &products {
+        match measure(o, p, per_dose, doses, cap) {
+            Some(Ok(m)) if m.off_pct(per_dose).abs() <= tolerance + 1e-9 => {
+                fit = Some(m);
+                break;
+            }
+            Some(Ok(m) | Err(m)) => not_used.push(m.describe(per_dose)),
+            None => not_used.push(format!("{}: no elemental strength", p.label)),
+        }
     }
-    let given_per_dose = amount * per_unit;
-    let unit_text = if unit_text != "mL" && (amount - 1.0).abs() > 1e-9 { format!("{unit_text}s") } else { unit_text };
     let capped = match limit {
         Some((max, source)) if day < raw_day => format!(
             " = {} mg/day, capped at the daily upper limit {} mg/day ({source}), so {} mg/day",
@@ -592,27 +668,79 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         ),
         _ => format!(" = {} mg/day", num_trim(day)),
     };
-    let text = format!(
-        "{} kg x {} mg/kg/day elemental calcium{capped}, in {} doses ({}) = {} mg per dose = {} {unit_text} of {} ({} mg elemental calcium per {}), giving {} mg elemental per dose ({} mg/day). {}",
+    let head = format!(
+        "{} kg x {} mg/kg/day elemental calcium{capped}, in {} doses ({}) = {} mg per dose",
         num_trim(w.kg),
         num_trim(per_kg_day),
         o.doses_per_day,
         o.doses_source,
         num_trim(per_dose),
-        num_trim(amount),
-        p.label,
-        num_trim(per_unit),
-        p.strength_per,
-        num_trim(given_per_dose),
-        num_trim(given_per_dose * f64::from(o.doses_per_day)),
+    );
+    let rule =
+        format!("a measured dose stays within {}% of the computed dose ({})", num_trim(tolerance), o.rounding_source);
+    let not_used_text =
+        if not_used.is_empty() { String::new() } else { format!(" Not used: {}.", not_used.join("; ")) };
+    let Some(m) = fit else {
+        // Nothing measures the dose closely enough: say so, propose no amount, flag it.
+        let p = products.first()?;
+        issues.push(SafetyIssue {
+            key: "oral-dose-rounding",
+            act_code: Some(("DOSE", "Dosage problem")),
+            severity: IssueSeverity::Moderate,
+            title: "No measurable oral calcium dose".into(),
+            detail: format!(
+                "{} mg elemental calcium per dose cannot be measured within {}% with the formulary's products ({}).{not_used_text}",
+                num_trim(per_dose),
+                num_trim(tolerance),
+                o.rounding_source
+            ),
+            implicated: Vec::new(),
+            mitigation: "Prescribe a measurable amount by hand (another product or strength, or another number of doses a day) and recheck calcium.".into(),
+        });
+        return Some(MedProposal {
+            key: "oral-calcium",
+            title: "Oral elemental calcium".into(),
+            product: (*p).clone(),
+            text: format!(
+                "{head}. No product in the formulary measures this dose within {}% ({}), so no amount is proposed: prescribe a measurable dose by hand.{not_used_text} {}",
+                num_trim(tolerance),
+                o.rounding_source,
+                o.advice
+            ),
+            dose: None,
+            rate: None,
+            per_day: Some(o.doses_per_day),
+            days: None,
+            max_per_day: limit.map(|l| Qty { value: l.0, unit: "mg" }),
+            route: Route::Oral,
+            sources: sources_shown(rules, d, &o.also_shown, ctx),
+            alternative: false,
+            specialist: false,
+        });
+    };
+    let off = m.off_pct(per_dose);
+    let text = format!(
+        "{head} = {} {} of {} ({} mg elemental calcium per {}), giving {} mg elemental per dose ({} mg/day; {}% {} the computed dose, and {rule}).{not_used_text} {}",
+        num_trim(m.amount),
+        m.unit_text,
+        m.p.label,
+        num_trim(m.p.elemental_mg.unwrap_or(f64::NAN)),
+        m.p.strength_per,
+        num_trim(m.mg),
+        num_trim(m.mg * doses),
+        num_trim(off.abs().round()),
+        if off >= 0.0 { "above" } else { "below" },
         o.advice
     );
     Some(MedProposal {
         key: "oral-calcium",
         title: "Oral elemental calcium".into(),
-        product: p.clone(),
+        product: m.p.clone(),
         text,
-        dose: Some(Qty { value: round_to(amount, 0.01), unit: if p.strength_per == "mL" { "mL" } else { "{tbl}" } }),
+        dose: Some(Qty {
+            value: round_to(m.amount, 0.01),
+            unit: if m.p.strength_per == "mL" { "mL" } else { "{tbl}" },
+        }),
         rate: None,
         per_day: Some(o.doses_per_day),
         days: None,
@@ -1128,11 +1256,106 @@ mod tests {
             p.proposals.iter().map(|x| x.key).collect::<Vec<_>>()
         );
         let o = find(&p, "oral-calcium");
-        // 22 kg x 50 = 1100 mg/day in 4 doses = 275 mg per dose; from 6 years the
-        // proposal uses tablets (treatment.toml oral.tablets_from).
+        // 22 kg x 50 = 1100 mg/day in 4 doses = 275 mg per dose. From 6 years tablets are
+        // tried first (treatment.toml oral.tablets_from), but no whole tablet is within
+        // 10% of 275 mg (500 mg: +82%; 200 mg: -27%), so the liquid: 2.7-2.8 mL of 100 mg/mL.
         assert_eq!(o.per_day, Some(4));
         assert!(o.text.starts_with("22 kg x 50 mg/kg/day elemental calcium = 1100 mg/day"), "{}", o.text);
-        assert_eq!(o.product.strength_per, "tablet");
+        assert_eq!(o.product.strength_per, "mL");
+        let ml = o.dose.as_ref().unwrap().value;
+        assert!((ml * 100.0 - 275.0).abs() <= 27.5, "{ml} mL");
+    }
+
+    /// The oral proposal for a 7-year-old girl of `kg` (ionized 1.05: oral only).
+    fn oral_for(r: &RuleSet, birth: Option<PartialDate>, kg: f64) -> (MedProposal, TreatmentPlan) {
+        let p = run(r, birth, 1.05, Some(kg));
+        (find(&p, "oral-calcium").clone(), p)
+    }
+
+    #[test]
+    fn oral_dose_for_20_kg_is_not_doubled_by_tablet_rounding() {
+        // 20 kg x 50 mg/kg/day = 1000 mg/day / 4 = 250 mg per dose. The 500 mg tablet:
+        // 1 tablet = 500 mg (+100%), above the 10% tolerance, and 0 is no dose. The 200 mg
+        // chewable: 1 tablet = 200 mg (-20%), outside 10%. The 100 mg/mL liquid:
+        // 250 / 100 = 2.5 mL = 250 mg (0%), 1000 mg/day. (Before: 1 tablet, 2000 mg/day.)
+        let (o, p) = oral_for(&rules(), seven(), 20.0);
+        assert_eq!(o.product.id, "calcium_carbonate_susp_1250mg_5ml");
+        assert_eq!(o.dose, Some(Qty { value: 2.5, unit: "mL" }));
+        assert!(o.text.contains("giving 250 mg elemental per dose (1000 mg/day; 0% above"), "{}", o.text);
+        assert!(o.text.contains("Not used: 1 tablet of Calcium carbonate tablet 1250 mg"), "{}", o.text);
+        assert!(!p.issues.iter().any(|i| i.key == "oral-dose-rounding"));
+    }
+
+    #[test]
+    fn oral_dose_for_25_kg_stays_within_10_percent() {
+        // 25 kg x 50 mg/kg/day = 1250 mg/day / 4 = 312.5 mg per dose. 500 mg tablet: 1 =
+        // +60%. 200 mg chewable: 2 = 400 mg (+28%), 1 = 200 mg (-36%). Liquid: 312.5 / 100
+        // = 3.125 mL, to 0.1 mL = 3.1 mL = 310 mg (-0.8%), 1240 mg/day. (Before: 1 tablet,
+        // 500 mg per dose, 2000 mg/day, +60%.)
+        let (o, _) = oral_for(&rules(), seven(), 25.0);
+        assert_eq!(o.product.strength_per, "mL");
+        assert_eq!(o.dose, Some(Qty { value: 3.1, unit: "mL" }));
+        assert!(o.text.contains("= 312.5 mg per dose = 3.1 mL of"), "{}", o.text);
+        assert!(o.text.contains("(1240 mg/day; 1% below the computed dose"), "{}", o.text);
+    }
+
+    #[test]
+    fn whole_tablets_when_they_fit_a_smaller_tablet_when_only_it_does() {
+        let r = rules();
+        // 12 years, 40 kg: 2000 mg/day / 4 = 500 mg per dose = 1 tablet of 500 mg (0%).
+        let (o, _) = oral_for(&r, born_days_ago(12 * 365 + 100), 40.0);
+        assert_eq!(
+            (o.product.id.as_str(), o.dose.as_ref().map(|d| d.value)),
+            ("calcium_carbonate_tab_1250mg", Some(1.0))
+        );
+        // 10 years, 35 kg: 1750 / 4 = 437.5 mg; 1 x 500 mg = +14% (too high); 2 x 200 mg
+        // chewable = 400 mg (-8.6%): within 10%.
+        let (o, _) = oral_for(&r, born_days_ago(10 * 365 + 100), 35.0);
+        assert_eq!(
+            (o.product.id.as_str(), o.dose.as_ref().map(|d| d.value)),
+            ("calcium_carbonate_chewtab_500mg", Some(2.0))
+        );
+        assert!(o.text.contains("2 tablets of Calcium carbonate chewable tablet"), "{}", o.text);
+    }
+
+    #[test]
+    fn when_nothing_measures_the_dose_no_amount_is_proposed_and_it_is_flagged() {
+        // A liquid measured only in 5 mL steps (500 mg): for 250 mg per dose, 5 mL is
+        // +100% and no tablet fits either, so no amount, and a dose issue.
+        let mut r = rules();
+        r.treatment.oral.liquid_round_ml = 5.0;
+        let (o, p) = oral_for(&r, seven(), 20.0);
+        assert_eq!(o.dose, None);
+        assert!(o.text.contains("No product in the formulary measures this dose within 10%"), "{}", o.text);
+        let issue = p.issues.iter().find(|i| i.key == "oral-dose-rounding").expect("flagged");
+        assert_eq!(issue.act_code, Some(("DOSE", "Dosage problem")));
+        assert!(
+            issue.detail.starts_with("250 mg elemental calcium per dose cannot be measured within 10%"),
+            "{}",
+            issue.detail
+        );
+    }
+
+    #[test]
+    fn no_oral_dose_is_more_than_the_tolerance_above_the_computed_dose() {
+        // A sweep of plausible weights from 6 to 17 years: the measured dose is within 10%
+        // of weight x 50 mg/kg/day / 4 (capped), and 4 doses stay within the daily limit.
+        let r = rules();
+        let tol = r.treatment.oral.rounding_tolerance_pct / 100.0;
+        for (years, kgs) in [(6, 16.0..=26.0), (9, 22.0..=38.0), (13, 35.0..=60.0), (16, 45.0..=75.0)] {
+            let mut kg = *kgs.start();
+            while kg <= *kgs.end() {
+                let (o, _) = oral_for(&r, born_days_ago(years * 365 + 100), kg);
+                let cap = o.max_per_day.as_ref().unwrap().value;
+                let per_dose = (kg * 50.0).min(cap) / 4.0;
+                let amount = o.dose.as_ref().unwrap_or_else(|| panic!("{years} y {kg} kg: {}", o.text)).value;
+                let given = amount * o.product.elemental_mg.unwrap();
+                assert!(given <= per_dose * (1.0 + tol) + 1e-6, "{years} y {kg} kg: {given} vs {per_dose}: {}", o.text);
+                assert!(given >= per_dose * (1.0 - tol) - 1e-6, "{years} y {kg} kg: {given} vs {per_dose}: {}", o.text);
+                assert!(given * 4.0 <= cap + 1e-6, "{years} y {kg} kg");
+                kg += 1.3;
+            }
+        }
     }
 
     #[test]

@@ -344,6 +344,13 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
     product(&t.chloride.product, "chloride.product", problems);
     product(&t.oral.liquid_product, "oral.liquid_product", problems);
     product(&t.oral.tablet_product, "oral.tablet_product", problems);
+    for id in &t.oral.other_tablet_products {
+        product(id, "oral.other_tablet_products", problems);
+    }
+    if !t.oral.rounding_tolerance_pct.is_finite() || t.oral.rounding_tolerance_pct < 0.0 {
+        problems
+            .push(format!("  treatment.oral.rounding_tolerance_pct: {} is negative", t.oral.rounding_tolerance_pct));
+    }
     product(&t.magnesium.product, "magnesium.product", problems);
     product(&t.vitamin_d.cholecalciferol_product, "vitamin_d.cholecalciferol_product", problems);
     product(&t.vitamin_d.calcitriol_product, "vitamin_d.calcitriol_product", problems);

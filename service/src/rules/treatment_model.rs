@@ -225,6 +225,14 @@ pub struct OralPolicy {
     pub liquid_product: String,
     /// Product for children who take tablets.
     pub tablet_product: String,
+    /// Other tablets, tried in order when the tablet product cannot measure the dose
+    /// within the rounding tolerance (then the liquid is tried).
+    pub other_tablet_products: Vec<String>,
+    /// A measured dose (whole tablets, liquid steps) stays within this percent of the
+    /// computed dose, above or below.
+    pub rounding_tolerance_pct: f64,
+    /// Source of the tolerance.
+    pub rounding_source: String,
     /// Tablets from this age.
     pub tablets_from: super::model::AgeBound,
     /// Source / rationale.
