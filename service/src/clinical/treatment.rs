@@ -1087,8 +1087,11 @@ fn safety_with_proposals(
     // A high calcium-phosphate product before giving calcium.
     let any_calcium = plan.proposals.iter().any(|p| p.key.starts_with("calcium") || p.key == "oral-calcium");
     if any_calcium {
-        let total = facts.of(Analyte::CalciumTotal).into_iter().next();
-        let phosphate = facts.of(Analyte::Phosphate).into_iter().next();
+        // The newest results within the rules' result window; older ones say nothing of now.
+        let limit = facts.now - (rules.windows.result_max_age_hours * 3600.0).round() as i64;
+        let fresh = |a| facts.of(a).into_iter().find(|m| m.when.latest >= limit);
+        let total = fresh(Analyte::CalciumTotal);
+        let phosphate = fresh(Analyte::Phosphate);
         if let (Some(ca), Some(p)) = (total, phosphate) {
             let ca_mass = rules.analyte(Analyte::CalciumTotal).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
             let p_mass = rules.analyte(Analyte::Phosphate).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
@@ -1401,8 +1404,27 @@ mod tests {
         assert!(!p.issues.iter().any(|i| i.key == "extravasation"));
     }
 
-    fn phosphate_mg(mg_dl: f64, id: &str) -> Measurement {
-        m(Analyte::Phosphate, mg_dl * 10.0 / 30.974, "mmol/L", (mg_dl, "mg/dL"), 1, id)
+    fn phosphate_mg(mg_dl: f64, hours_ago: i64, id: &str) -> Measurement {
+        m(Analyte::Phosphate, mg_dl * 10.0 / 30.974, "mmol/L", (mg_dl, "mg/dL"), hours_ago, id)
+    }
+
+    #[test]
+    fn caxp_uses_only_results_within_the_result_window() {
+        // 13 years: limit 55. Total calcium 8.0 x phosphate 7.5 = 60 fires when both are
+        // fresh; a phosphate 4 days old (the window is 72 h) is not used, so no product.
+        let r = rules();
+        for (p_hours_ago, fires) in [(1, true), (71, true), (96, false)] {
+            let m = vec![
+                ionized(0.85, 1, "ica"),
+                total_mg(8.0, 1, "tca"),
+                phosphate_mg(7.5, p_hours_ago, "p"),
+                weight(45.0),
+            ];
+            let facts = facts_of(born_days_ago(13 * 365 + 100), Gender::Female, m, vec![]);
+            let a = status::assess(&facts, &r);
+            let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+            assert_eq!(p.issues.iter().any(|i| i.key == "caxp"), fires, "phosphate {p_hours_ago} h old");
+        }
     }
 
     #[test]
@@ -1412,7 +1434,7 @@ mod tests {
         // adolescents older than 12 (KDOQI 7.5). Weights near the median for the age.
         let r = rules();
         for (years, kg, fires) in [(12, 40.0, false), (13, 45.0, true)] {
-            let m = vec![ionized(0.85, 1, "ica"), total_mg(8.0, 1, "tca"), phosphate_mg(7.5, "p"), weight(kg)];
+            let m = vec![ionized(0.85, 1, "ica"), total_mg(8.0, 1, "tca"), phosphate_mg(7.5, 1, "p"), weight(kg)];
             let facts = facts_of(born_days_ago(years * 365 + 100), Gender::Female, m, vec![]);
             let a = status::assess(&facts, &r);
             let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
