@@ -377,15 +377,24 @@ async fn from_6_years_oral_calcium_is_whole_tablets_with_the_age_upper_limit() {
     let oral = all[0];
     assert_eq!(route(oral), ORAL_ROUTE);
     assert!(
-        oral["medicationCodeableConcept"]["text"].as_str().unwrap().starts_with("Calcium carbonate tablet 1250 mg")
+        oral["medicationCodeableConcept"]["text"]
+            .as_str()
+            .unwrap()
+            .starts_with("Calcium carbonate chewable tablet 500 mg (200 mg elemental Ca)")
     );
     assert_eq!(dosage(oral)["timing"]["repeat"]["frequency"], 4);
-    // 32 kg x 50 = 1600 mg/day; / 4 = 400 mg per dose; a 1250 mg tablet holds 500 mg elemental
-    // and is not divisible (divisible_into = 1): 400 / 500 = 0.8, to the nearest whole tablet = 1.
-    assert_eq!(dose(oral), (1.0, "{tbl}".to_owned()));
+    // 32 kg x 50 = 1600 mg/day; / 4 = 400 mg per dose. The 1250 mg tablet (500 mg elemental,
+    // not divisible): 1 tablet = 500 mg is 25% above, more than the 10% rounding tolerance
+    // (oral.rounding_tolerance_pct). The next tablet, the 200 mg elemental chewable:
+    // 400 / 200 = 2 tablets, exactly the dose.
+    assert_eq!(dose(oral), (2.0, "{tbl}".to_owned()));
     let t = text(oral);
     assert!(t.starts_with("32 kg x 50 mg/kg/day elemental calcium = 1600 mg/day"), "{t}");
-    assert!(t.contains("= 400 mg per dose = 1 tablet of"), "{t}");
+    assert!(t.contains("= 400 mg per dose = 2 tablets of"), "{t}");
+    assert!(
+        t.contains("Not used: 1 tablet of Calcium carbonate tablet 1250 mg (500 mg elemental Ca) = 500 mg, 25% above"),
+        "{t}"
+    );
     // 9 to 18 years: IOM upper limit 3000 mg/day.
     let max = &dosage(oral)["maxDosePerPeriod"]["numerator"];
     assert!(close(max["value"].as_f64().unwrap(), 3000.0) && max["code"] == "mg", "{max}");
@@ -399,14 +408,16 @@ async fn a_capped_tablet_dose_never_exceeds_the_stated_daily_maximum() {
     let result = app.assess_ok(&s.add(Lab::IonizedCa, "ica-1", 1.05, 1.0).with(w).bundle()).await;
     let oral = medication_requests(&result)[0];
     // 70 kg x 50 = 3500 mg/day, above the 9-18 y upper limit 3000 mg/day: capped to 3000,
-    // 750 mg per dose = 1.5 tablets of 500 mg, which cannot be split.
+    // 750 mg per dose = 1.5 tablets of 500 mg, which cannot be split: 1 is 33% below and
+    // 2 pass the maximum. 200 mg chewables: 4 pass the maximum, 3 are 20% below. The
+    // 100 mg/mL liquid: 7.5 mL = 750 mg.
     let max = dosage(oral)["maxDosePerPeriod"]["numerator"]["value"].as_f64().unwrap();
     assert!(close(max, 3000.0), "{max}");
-    let (tablets, unit) = dose(oral);
-    assert_eq!(unit, "{tbl}");
-    // Whatever whole number is proposed, 4 doses a day of it must stay within the maximum.
-    let per_day = tablets * 500.0 * 4.0;
-    assert!(per_day <= max, "{tablets} tablet(s) x 500 mg x 4 = {per_day} mg/day > {max} mg/day: {}", text(oral));
+    let (ml, unit) = dose(oral);
+    assert_eq!((ml, unit.as_str()), (7.5, "mL"), "{}", text(oral));
+    // 4 doses a day of it stay within the maximum.
+    let per_day = ml * 100.0 * 4.0;
+    assert!(per_day <= max, "{ml} mL x 100 mg/mL x 4 = {per_day} mg/day > {max} mg/day: {}", text(oral));
 }
 
 #[tokio::test]
@@ -499,6 +510,51 @@ async fn sodium_bicarbonate_with_iv_calcium_warns_of_precipitation() {
     assert!(implicates(issue, "MedicationRequest", "mr-bicarb", 4), "{issue}");
     let result = app.assess_ok(&symptomatic(aged(6, 60), 20.0).bundle()).await;
     assert!(safety(&result, "Sodium bicarbonate").is_empty(), "{:?}", issue_titles(&result));
+}
+
+/// A MedicationAdministration in the named ATC code, `hours_ago` before now.
+fn given(s: &Scenario, id: &str, code: &str, display: &str, status: &str, hours_ago: f64) -> Value {
+    let mut ma = json!({
+        "resourceType": "MedicationAdministration", "id": id, "status": status,
+        "medicationCodeableConcept": { "coding": [{ "system": ATC, "code": code, "display": display }] },
+        "subject": { "reference": PATIENT_URL },
+    });
+    if status == "in-progress" {
+        ma["effectivePeriod"] = json!({ "start": s.time(hours_ago) });
+    } else {
+        ma["effectiveDateTime"] = json!(s.time(hours_ago));
+    }
+    ma
+}
+
+#[tokio::test]
+async fn only_current_digoxin_and_bicarbonate_are_flagged() {
+    let app = spawn_app().await;
+    // Digoxin: an order completed, written 60 days ago, and a dose given 30 days ago are
+    // past the 14-day window; a dose 2 days ago is not.
+    for (status, hours, fires) in [("completed", 60.0 * 24.0, false), ("completed", 2.0 * 24.0, true)] {
+        let s = symptomatic(aged(6, 60), 20.0);
+        let mut mr = medication_request(&s, "mr-digoxin", ATC, "C01AA05", "digoxin");
+        mr["status"] = json!(status);
+        mr["authoredOn"] = json!(s.time(hours));
+        let ma = given(&s, "ma-digoxin", "C01AA05", "digoxin", "completed", 30.0 * 24.0);
+        let result = app.assess_ok(&s.with(mr).with(ma).bundle()).await;
+        assert_eq!(!safety(&result, "Digoxin").is_empty(), fires, "{status} {hours} h: {:?}", issue_titles(&result));
+    }
+    // Sodium bicarbonate: given 20 days ago, no; 1 hour ago, or running, yes.
+    for (status, hours, fires) in
+        [("completed", 20.0 * 24.0, false), ("completed", 1.0, true), ("in-progress", 10.0, true)]
+    {
+        let s = symptomatic(aged(6, 60), 20.0);
+        let ma = given(&s, "ma-bicarb", "B05XA02", "sodium bicarbonate", status, hours);
+        let result = app.assess_ok(&s.with(ma).bundle()).await;
+        assert_eq!(
+            !safety(&result, "Sodium bicarbonate").is_empty(),
+            fires,
+            "{status} {hours} h: {:?}",
+            issue_titles(&result)
+        );
+    }
 }
 
 #[tokio::test]

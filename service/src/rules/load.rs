@@ -344,6 +344,13 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
     product(&t.chloride.product, "chloride.product", problems);
     product(&t.oral.liquid_product, "oral.liquid_product", problems);
     product(&t.oral.tablet_product, "oral.tablet_product", problems);
+    for id in &t.oral.other_tablet_products {
+        product(id, "oral.other_tablet_products", problems);
+    }
+    if !t.oral.rounding_tolerance_pct.is_finite() || t.oral.rounding_tolerance_pct < 0.0 {
+        problems
+            .push(format!("  treatment.oral.rounding_tolerance_pct: {} is negative", t.oral.rounding_tolerance_pct));
+    }
     product(&t.magnesium.product, "magnesium.product", problems);
     product(&t.vitamin_d.cholecalciferol_product, "vitamin_d.cholecalciferol_product", problems);
     product(&t.vitamin_d.calcitriol_product, "vitamin_d.calcitriol_product", problems);
@@ -366,12 +373,16 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
             }
         }
     }
-    for l in &t.oral.daily_limits {
-        if rules.safety_sources.get(&l.safety_source).and_then(|s| s.threshold).is_none() {
-            problems.push(format!(
-                "  treatment.oral.daily_limits: safety source '{}' with a threshold is missing",
-                l.safety_source
-            ));
+    let limit_lists = [("oral.daily_limits", &t.oral.daily_limits), ("safety.ca_x_p_limits", &t.safety.ca_x_p_limits)];
+    for (at, limits) in limit_lists {
+        if limits.is_empty() {
+            problems.push(format!("  treatment.{at}: no limits"));
+        }
+        for l in limits {
+            if rules.safety_sources.get(&l.safety_source).and_then(|s| s.threshold).is_none() {
+                problems
+                    .push(format!("  treatment.{at}: safety source '{}' with a threshold is missing", l.safety_source));
+            }
         }
     }
     for key in [
@@ -381,13 +392,31 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
         "extravasation_calcinosis",
         "no_intra_arterial_or_uac",
         "neonatal_bradycardia_stop",
-        "ca_x_p_under_12y",
-        "ca_x_p_over_12y",
         "calcium_chloride_rate_and_vein",
     ] {
         if !rules.safety_sources.contains_key(key) {
             problems.push(format!("  safety_sources: '{key}' is read by the safety checks and is missing"));
         }
+    }
+    // Thresholds the checks compute with: present, positive and in the unit the code assumes.
+    for (key, unit) in [("ceftriaxone_neonate_contraindication", "d"), ("calcium_chloride_rate_and_vein", "mL/min")] {
+        let Some(s) = rules.safety_sources.get(key) else { continue };
+        if !s.threshold.is_some_and(|t| t > 0.0) || s.unit.as_deref() != Some(unit) {
+            problems.push(format!(
+                "  safety_sources.{key}: the safety checks need a positive threshold in '{unit}' (got {:?} {:?})",
+                s.threshold, s.unit
+            ));
+        }
+    }
+    for (at, w) in
+        [("digoxin_current", &t.safety.digoxin_current), ("bicarbonate_current", &t.safety.bicarbonate_current)]
+    {
+        if !w.hours.is_finite() || w.hours <= 0.0 {
+            problems.push(format!("  treatment.safety.{at}.hours: {} is not positive", w.hours));
+        }
+    }
+    if !t.infusion.makeup_ml.is_finite() || t.infusion.makeup_ml <= 0.0 {
+        problems.push(format!("  treatment.infusion.makeup_ml: {} is not positive", t.infusion.makeup_ml));
     }
     for id in ["digoxin", "sodium_bicarbonate", "ceftriaxone", "calcium_preparations", "phosphate_preparations"] {
         if !rules.code_lists.iter().any(|l| l.id == id) {
@@ -526,6 +555,39 @@ mod tests {
         let site = "[treatment.bolus]\nalso_shown = [\"us_label_ca_gluconate_neonate_infusion\"]\n";
         let err = load(Some(("site.toml", site))).unwrap_err();
         assert!(err.to_string().contains("is a infusion range, not bolus"), "{err}");
+    }
+
+    /// The merged default documents, to break one value at a time.
+    fn default_document() -> Value {
+        let mut doc = Value::Object(serde_json::Map::new());
+        for (name, text) in DEFAULT_FILES {
+            merge(&mut doc, parse_toml(name, text).unwrap(), "");
+        }
+        doc
+    }
+
+    #[test]
+    fn a_missing_or_unitless_safety_threshold_is_inconsistent() {
+        for (key, field) in [
+            ("ceftriaxone_neonate_contraindication", "threshold"),
+            ("calcium_chloride_rate_and_vein", "threshold"),
+            ("ceftriaxone_neonate_contraindication", "unit"),
+            ("calcium_chloride_rate_and_vein", "unit"),
+        ] {
+            let mut doc = default_document();
+            doc["safety_sources"][key].as_object_mut().unwrap().remove(field);
+            let err = from_document(doc).unwrap_err();
+            assert!(matches!(err, RuleError::Inconsistent(_)), "{key}.{field}: {err}");
+            assert!(err.to_string().contains(&format!("safety_sources.{key}: the safety checks need")), "{err}");
+        }
+    }
+
+    #[test]
+    fn a_caxp_limit_without_a_threshold_is_inconsistent() {
+        let mut doc = default_document();
+        doc["safety_sources"]["ca_x_p_under_12y"].as_object_mut().unwrap().remove("threshold");
+        let err = from_document(doc).unwrap_err();
+        assert!(err.to_string().contains("treatment.safety.ca_x_p_limits: safety source 'ca_x_p_under_12y'"), "{err}");
     }
 
     #[test]

@@ -196,6 +196,11 @@ pub struct InfusionPolicy {
     pub pump_resolution_ml_per_h: f64,
     /// Source.
     pub pump_source: String,
+    /// The make-up volume the preparation is described in, mL (so much product made
+    /// up to this volume with diluent).
+    pub makeup_ml: f64,
+    /// Source of the make-up volume.
+    pub makeup_source: String,
     /// Monitoring and stop text.
     pub monitoring: String,
 }
@@ -220,6 +225,14 @@ pub struct OralPolicy {
     pub liquid_product: String,
     /// Product for children who take tablets.
     pub tablet_product: String,
+    /// Other tablets, tried in order when the tablet product cannot measure the dose
+    /// within the rounding tolerance (then the liquid is tried).
+    pub other_tablet_products: Vec<String>,
+    /// A measured dose (whole tablets, liquid steps) stays within this percent of the
+    /// computed dose, above or below.
+    pub rounding_tolerance_pct: f64,
+    /// Source of the tolerance.
+    pub rounding_source: String,
     /// Tablets from this age.
     pub tablets_from: super::model::AgeBound,
     /// Source / rationale.
@@ -286,6 +299,26 @@ pub struct VitaminDPolicy {
 pub struct SafetyPolicy {
     /// Why dextrose is preferred over saline as diluent.
     pub saline_source: String,
+    /// Calcium x phosphate product limits by age: the `safety_sources` entry whose
+    /// threshold applies at each age.
+    pub ca_x_p_limits: Vec<LimitByAge>,
+    /// Source of the age split between the limits.
+    pub ca_x_p_age_source: String,
+    /// When a recorded digoxin counts as current.
+    pub digoxin_current: RecencyWindow,
+    /// When a recorded sodium bicarbonate counts as current.
+    pub bicarbonate_current: RecencyWindow,
+}
+
+/// A medication counts as current for a safety check when it is running (an
+/// administration in progress, an active order) or was recorded within this window.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct RecencyWindow {
+    /// Hours before the evaluation time.
+    pub hours: f64,
+    /// Source.
+    pub source: String,
 }
 
 /// A published safety fact.
