@@ -98,6 +98,8 @@ enum Applies {
     WithCalcium,
     /// When a site sets a saline diluent and IV calcium is proposed.
     WithIvCalciumSaline,
+    /// When oral calcium is proposed.
+    WithOralCalcium,
 }
 
 /// Every safety check of treatment.rs: key, rule data it reads, question.
@@ -150,9 +152,15 @@ const SAFETY_CHECKS: &[(&str, &str, &str, Applies)] = &[
     ("qtc", "qtc.prolonged_above_ms", "Is the QTc prolonged?", Applies::WithIvCalcium),
     (
         "caxp",
-        "safety_sources.ca_x_p_under_12y, safety_sources.ca_x_p_over_12y",
+        "treatment.safety.ca_x_p_limits, safety_sources.ca_x_p_under_12y, safety_sources.ca_x_p_over_12y",
         "Is the calcium-phosphate product above the limit for the age?",
         Applies::WithCalcium,
+    ),
+    (
+        "oral-dose-rounding",
+        "treatment.oral (rounding tolerance)",
+        "Can a product measure the oral dose within the rounding tolerance?",
+        Applies::WithOralCalcium,
     ),
 ];
 
@@ -425,7 +433,8 @@ fn treatment_steps(rules: &RuleSet, a: &Assessment, plan: &TreatmentPlan, steps:
         steps.push(s);
     }
     let iv = plan.proposals.iter().any(|p| p.route == Route::Iv && p.key.starts_with("calcium"));
-    let any = plan.proposals.iter().any(|p| p.key.starts_with("calcium") || p.key == "oral-calcium");
+    let oral = plan.proposals.iter().any(|p| p.key == "oral-calcium");
+    let any = plan.proposals.iter().any(|p| p.key.starts_with("calcium")) || oral;
     let saline =
         rules.treatment.diluents.iter().find(|d| d.id == rules.treatment.bolus.diluent).is_some_and(|d| d.saline);
     for (key, rule, question, applies) in SAFETY_CHECKS {
@@ -436,6 +445,7 @@ fn treatment_steps(rules: &RuleSet, a: &Assessment, plan: &TreatmentPlan, steps:
             Applies::WithIvCalcium => iv,
             Applies::WithCalcium => any,
             Applies::WithIvCalciumSaline => iv && saline,
+            Applies::WithOralCalcium => oral,
         };
         let raised: Vec<_> = plan.issues.iter().filter(|i| i.key == *key).collect();
         s.result = if let Some(i) = raised.first() {
@@ -448,6 +458,7 @@ fn treatment_steps(rules: &RuleSet, a: &Assessment, plan: &TreatmentPlan, steps:
             match applies {
                 Applies::WhenLow => "not evaluated: the calcium is not low".to_owned(),
                 Applies::WithCalcium => "not evaluated: no calcium is proposed".to_owned(),
+                Applies::WithOralCalcium => "not evaluated: no oral calcium is proposed".to_owned(),
                 Applies::WithIvCalciumSaline if iv => "not evaluated: the site's diluent is not saline".to_owned(),
                 _ => "not evaluated: no IV calcium is proposed".to_owned(),
             }
