@@ -541,6 +541,18 @@ async fn only_current_digoxin_and_bicarbonate_are_flagged() {
         let result = app.assess_ok(&s.with(mr).with(ma).bundle()).await;
         assert_eq!(!safety(&result, "Digoxin").is_empty(), fires, "{status} {hours} h: {:?}", issue_titles(&result));
     }
+    // A MedicationStatement: active (being taken, dated when it started 90 days ago) yes;
+    // completed 60 days ago no (the reader passes the statement's status to the core).
+    for (status, hours, fires) in [("active", 90.0 * 24.0, true), ("completed", 60.0 * 24.0, false)] {
+        let s = symptomatic(aged(6, 60), 20.0);
+        let statement = json!({
+            "resourceType": "MedicationStatement", "id": "ms-digoxin", "status": status,
+            "medicationCodeableConcept": {"coding": [{"system": ATC, "code": "C01AA05", "display": "digoxin"}]},
+            "subject": {"reference": PATIENT_URL}, "effectiveDateTime": s.time(hours)
+        });
+        let result = app.assess_ok(&s.with(statement).bundle()).await;
+        assert_eq!(!safety(&result, "Digoxin").is_empty(), fires, "statement {status}: {:?}", issue_titles(&result));
+    }
     // Sodium bicarbonate: given 20 days ago, no; 1 hour ago, or running, yes.
     for (status, hours, fires) in
         [("completed", 20.0 * 24.0, false), ("completed", 1.0, true), ("in-progress", 10.0, true)]

@@ -215,7 +215,8 @@ pub struct CodedEvent {
     pub source: Source,
     /// Dose given in mg (MedicationAdministration.dosage.dose), when stated in mg.
     pub dose_mg: Option<f64>,
-    /// Still running (an administration in progress, or an active order).
+    /// Current: an administration in progress, an active order, or a statement
+    /// that the medication is being taken (MedicationStatement.status active).
     pub in_progress: bool,
 }
 

@@ -860,21 +860,17 @@ fn any_events(facts: &Facts, list: &str) -> Vec<Source> {
         .collect()
 }
 
-/// Medications in a list that count as current: running (an administration in
-/// progress, an active MedicationRequest), or given, taken or ordered within the
-/// window before the evaluation time. A MedicationStatement counts whatever its
-/// date: the facts do not say whether it is active or completed, and an active
-/// statement of a long-running drug carries the date it was started. An undated
-/// record counts too: it cannot be shown to be old.
+/// Medications in a list that count as current: running or being taken (an
+/// administration in progress, an active MedicationRequest, an active
+/// MedicationStatement, whatever its date: an active statement of a long-running
+/// drug carries the date it was started), or given, taken or ordered within the
+/// window before the evaluation time. A completed statement counts only within
+/// the window. An undated record counts too: it cannot be shown to be old.
 fn current_events(facts: &Facts, list: &str, window: &RecencyWindow) -> Vec<Source> {
     let window_s = (window.hours * 3600.0).round() as i64;
     events_in(facts, list, EventKind::Medication)
         .into_iter()
-        .filter(|e| {
-            e.in_progress
-                || e.source.resource_type == "MedicationStatement"
-                || e.when.is_none_or(|w| facts.now - w.latest <= window_s)
-        })
+        .filter(|e| e.in_progress || e.when.is_none_or(|w| facts.now - w.latest <= window_s))
         .map(|e| e.source.clone())
         .collect()
 }
@@ -970,9 +966,12 @@ fn safety_with_proposals(
                 .events
                 .iter()
                 .filter(|e| {
+                    // A running infusion or an active order; a statement that phosphate is
+                    // being taken (often by mouth) is not a line to precipitate in.
                     e.kind == EventKind::Medication
                         && e.lists.iter().any(|l| l == "phosphate_preparations")
                         && e.in_progress
+                        && e.source.resource_type != "MedicationStatement"
                 })
                 .map(|e| e.source.clone()),
         );
@@ -1479,9 +1478,15 @@ mod tests {
             ("an administration 15 days ago", med("digoxin", "MedicationAdministration", 15 * day, false, "c"), false),
             ("an active order written 60 days ago", med("digoxin", "MedicationRequest", 60 * day, true, "d"), true),
             ("an administration 2 days ago", med("digoxin", "MedicationAdministration", 2 * day, false, "e"), true),
+            ("an active statement dated 60 days ago", med("digoxin", "MedicationStatement", 60 * day, true, "f"), true),
             (
-                "a statement (status not in the facts) 60 days ago",
-                med("digoxin", "MedicationStatement", 60 * day, false, "f"),
+                "a completed statement dated 60 days ago",
+                med("digoxin", "MedicationStatement", 60 * day, false, "g"),
+                false,
+            ),
+            (
+                "a completed statement dated 2 days ago",
+                med("digoxin", "MedicationStatement", 2 * day, false, "h"),
                 true,
             ),
         ] {

@@ -188,7 +188,9 @@ impl<'a> Reader<'a> {
         });
         let in_progress = matches!(
             (e.resource_type, status),
-            ("MedicationAdministration", "in-progress") | ("MedicationRequest", "active")
+            ("MedicationAdministration", "in-progress")
+                | ("MedicationRequest", "active")
+                | ("MedicationStatement", "active")
         );
         events.push(CodedEvent {
             dose_mg,
