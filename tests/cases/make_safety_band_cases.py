@@ -692,11 +692,10 @@ now = "{NOW}"
 # 8 pg/mL x 2.4 = 19.2 pmol/L, below the 0-16 y interval 57.6-206.4 pmol/L (lab-ranges.toml);
 # 34 ng/mL x 2.496 = 84.9 nmol/L, sufficient (> 50 nmol/L, Munns 2016); PTH 22 > 6.25 pmol/L (1-10 y);
 # phosphate 0.8 < 0.90 mmol/L (1-16 y). Type 1: low 1,25 +3 (strong_for), normal 25-OH D +1, high PTH +1 = 5: likely.
-# Type 2 is not asserted: the service weighs it 'possible' (low 1,25 -3, normal 25-OH D +1, high PTH +1 = -1),
-# where a low 1,25-(OH)2D argues it out; reported for review rather than encoded.
+# Type 2 is ruled out: a low 1,25-(OH)2D excludes end-organ resistance (causes.toml, vddr_type2).
 severity = "moderate"
 leading_cause = "vddr_type1"
-causes_ruled_out = ["vitamin_d_deficiency", "hypoparathyroidism"]
+causes_ruled_out = ["vitamin_d_deficiency", "hypoparathyroidism", "vddr_type2"]
 proposals = ["oral-calcium", "calcitriol"]
 proposals_absent = ["cholecalciferol"]
 ''', SITE)
@@ -712,7 +711,8 @@ now = "{NOW}"
 severity = "moderate"
 leading_cause = "vddr_type2"
 causes_ruled_out = ["vitamin_d_deficiency", "vddr_type1", "hypoparathyroidism"]
-proposals = ["oral-calcium"]
+# Calcitriol for specialist dosing (treatment.toml, calcitriol_for includes vddr_type2).
+proposals = ["oral-calcium", "calcitriol"]
 proposals_absent = ["cholecalciferol"]
 ''', SITE)
 
