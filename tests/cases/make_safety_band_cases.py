@@ -315,11 +315,11 @@ c.lab("ica", 0.85, R).lab("weight", 4.2, W)
 c.administration("ceftriaxone", "completed", "2026-11-30T05:00:00-05:00")
 c.access = "peripheral"
 write(c, f'''
-description = "Boy born 2026-11-01 06:05, 29 completed days old at the 07:40 draw (29 days 1 h 35 min), given IV ceftriaxone at 05:00; ionized Ca 0.85 mmol/L (infant severe grade 0.9: high). Past 28 days the neonatal contraindication does not apply (the label allows sequential use with a flushed line), so the ceftriaxone check does not fire; the dose is the 29-day-and-older one."
+description = "Boy born 2026-11-01 06:05, 29 completed days old at the 07:40 draw (29 days 1 h 35 min), given IV ceftriaxone at 05:00; ionized Ca 0.85 mmol/L (infant severe grade 0.9: high). Past 28 days the neonatal contraindication does not apply (the label allows sequential use with a flushed line), so the neonatal ceftriaxone check does not fire; the any-age notice not to give them together through one line does. The dose is the 29-day-and-older one."
 now = "{NOW}"
 severity = "high"
 proposals = ["calcium-bolus"]
-safety_present = ["extravasation"]
+safety_present = ["extravasation", "ceftriaxone-line"]
 safety_absent = ["ceftriaxone", "digoxin", "precipitation", "arterial-line", "weight", "bradycardia", "qtc"]
 [doses.calcium-bolus]
 # From 29 days: 4.2 kg x 50 mg/kg = 210 mg calcium gluconate.

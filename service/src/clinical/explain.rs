@@ -131,6 +131,12 @@ const SAFETY_CHECKS: &[(&str, &str, &str, Applies)] = &[
         Applies::WithIvCalcium,
     ),
     (
+        "ceftriaxone-line",
+        "safety_sources.ceftriaxone_y_site_any_age",
+        "Is ceftriaxone recorded in a child past the neonatal age with IV calcium proposed?",
+        Applies::WithIvCalcium,
+    ),
+    (
         "saline-diluent",
         "treatment.bolus.diluent",
         "Is saline the site's diluent where dextrose is preferred?",

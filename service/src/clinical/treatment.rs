@@ -993,7 +993,23 @@ fn safety_with_proposals(
         let ceftriaxone = any_events(facts, "ceftriaxone");
         // The loader refuses rules without this threshold; were it missing, warn at any age.
         let (cef_source, cef_days) = fact(rules, "ceftriaxone_neonate_contraindication");
-        if !ceftriaxone.is_empty() && cef_days.is_none_or(|d| ctx.age_max.days as f64 <= d) {
+        // Warn when the child may be a neonate: the youngest possible age decides
+        // (a partial birth date must not silence the contraindication).
+        let may_be_neonate = cef_days.is_none_or(|d| ctx.age_min.days as f64 <= d);
+        if !ceftriaxone.is_empty() && !may_be_neonate {
+            let (line_source, _) = fact(rules, "ceftriaxone_y_site_any_age");
+            let line_text = rules.safety_sources.get("ceftriaxone_y_site_any_age").map_or("", |x| x.text.as_str());
+            plan.issues.push(SafetyIssue {
+                key: "ceftriaxone-line",
+                act_code: Some(("DRG", "Drug Interaction Alert")),
+                severity: IssueSeverity::Moderate,
+                title: "Ceftriaxone with IV calcium: never through the same line at the same time".into(),
+                detail: format!("Ceftriaxone is recorded. {line_text} ({line_source})."),
+                implicated: ceftriaxone.clone(),
+                mitigation: "Do not give them together through a Y-site; give them one after the other with the line flushed thoroughly between, or use separate lines.".into(),
+            });
+        }
+        if !ceftriaxone.is_empty() && may_be_neonate {
             let cef_days = cef_days.map_or_else(|| "(missing)".to_owned(), num_trim);
             plan.issues.push(SafetyIssue {
                 key: "ceftriaxone",
