@@ -551,7 +551,14 @@ impl Maker<'_> {
     fn calcium_value(&mut self, interval: &Interval) -> f64 {
         let d = &self.cat.draw;
         let deepest = interval.grades.iter().map(|g| g.at_or_below).fold(f64::INFINITY, f64::min);
-        let shallowest = interval.grades.iter().map(|g| g.at_or_below).fold(f64::NEG_INFINITY, f64::max);
+        // The shallowest grade strictly below the lower limit (a grade at the limit
+        // covers every low value, so "low" is then drawn above the next one down).
+        let shallowest = interval
+            .grades
+            .iter()
+            .map(|g| g.at_or_below)
+            .filter(|t| *t < interval.lower)
+            .fold(f64::NEG_INFINITY, f64::max);
         match self.sc.calcium.level {
             CalciumLevel::Normal => {
                 interval.lower + self.rng.between(d.normal_position) * (interval.upper - interval.lower)

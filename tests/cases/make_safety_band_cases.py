@@ -494,7 +494,8 @@ description = "Boy born at 34 weeks (gestational age recorded), day 6: preterm-n
 now = "{NOW}"
 # data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
 status = "data-required"
-# The severity is not asserted: the preterm band has no mild grade (calcium.toml: Tayside's mild grade <= 1.0 coincides with the lower limit and is not repeated), so the service reports "low" where a term neonate at 0.99 gets "moderate"; reported for review.
+# 0.99 <= 1.0, the preterm band's mild grade (Tayside mild <= 1.0, at the band's lower limit): moderate, as a term neonate at 0.99 would be.
+severity = "moderate"
 proposals = ["oral-calcium"]
 proposals_absent = ["calcium-bolus"]
 ''')

@@ -207,9 +207,10 @@ fn consistency(rules: &RuleSet) -> Result<(), RuleError> {
                 problems.push(format!("  bands.{}.{name}: lower {} is not below upper {}", band.id, i.lower, i.upper));
             }
             for g in &i.grades {
-                if g.at_or_below >= i.lower {
+                // A grade at the lower limit covers every low value; above it, it would grade normal ones.
+                if g.at_or_below > i.lower {
                     problems.push(format!(
-                        "  bands.{}.{name}: grade '{}' threshold {} is not below the lower limit {}",
+                        "  bands.{}.{name}: grade '{}' threshold {} is above the lower limit {}",
                         band.id, g.grade, g.at_or_below, i.lower
                     ));
                 }
