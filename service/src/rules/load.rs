@@ -601,4 +601,15 @@ mod tests {
         let err = from_document(doc).unwrap_err();
         assert!(matches!(err, RuleError::Inconsistent(_)), "{err}");
     }
+
+    #[test]
+    fn no_default_rule_file_names_a_local_path() {
+        // Source texts reach the output (advisories show their basis): they cite
+        // publications, labels and listings, never a file on a developer's machine.
+        for (name, text) in DEFAULT_FILES {
+            for (n, line) in text.lines().enumerate() {
+                assert!(!line.contains("/work/") && !line.contains("shared/reference"), "{name}:{}: {line}", n + 1);
+            }
+        }
+    }
 }
