@@ -400,10 +400,26 @@ fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     })
 }
 
-fn given_last_24h(facts: &Facts) -> (f64, Vec<Source>, Vec<Source>) {
-    let mut mg = 0.0;
-    let mut counted = Vec::new();
-    let mut uncounted = Vec::new();
+/// IV calcium already given in the last 24 h, as mg of the reference salt (the
+/// infusion's product): each administration's salt is found from its code in the
+/// formulary and converted through its elemental calcium (mg salt x elemental/salt
+/// of its product / elemental/salt of the reference), so chloride and gluconate
+/// are not added as if alike. Oral products are not part of the IV maximum.
+struct Given {
+    /// Reference-salt mg.
+    mg: f64,
+    /// Administrations counted.
+    counted: Vec<Source>,
+    /// Administrations not counted, with why.
+    uncounted: Vec<(Source, &'static str)>,
+    /// Conversions made, for the text.
+    conversions: Vec<String>,
+}
+
+fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given {
+    let mut g = Given { mg: 0.0, counted: Vec::new(), uncounted: Vec::new(), conversions: Vec::new() };
+    let fraction = |p: &Product| p.elemental_mg.zip(p.salt_mg).filter(|(_, s)| *s > 0.0).map(|(e, s)| e / s);
+    let Some(reference_fraction) = fraction(reference) else { return g };
     for e in events_in(facts, "calcium_preparations", EventKind::Medication) {
         if e.source.resource_type != "MedicationAdministration" {
             continue;
@@ -412,15 +428,40 @@ fn given_last_24h(facts: &Facts) -> (f64, Vec<Source>, Vec<Source>) {
         if !recent {
             continue;
         }
-        match &e.dose_mg {
-            Some(v) => {
-                mg += v;
-                counted.push(e.source.clone());
+        let Some(v) = e.dose_mg else {
+            g.uncounted.push((e.source.clone(), "no dose in mg"));
+            continue;
+        };
+        let product =
+            rules.products.iter().find(|p| p.codes.iter().any(|c| c.system == e.code.system && c.code == e.code.code));
+        match product {
+            Some(p) if p.route != reference.route => {
+                g.uncounted.push((e.source.clone(), "not intravenous, not part of the IV maximum"));
             }
-            None => uncounted.push(e.source.clone()),
+            Some(p) => match fraction(p) {
+                Some(_) if p.id == reference.id => {
+                    g.mg += v;
+                    g.counted.push(e.source.clone());
+                }
+                Some(f) => {
+                    let equivalent = v * f / reference_fraction;
+                    g.conversions.push(format!(
+                        "{} mg {} = {} mg elemental calcium = {} mg {} equivalent",
+                        num_trim(v),
+                        p.salt.as_deref().unwrap_or(&p.label),
+                        num_trim(v * f),
+                        num_trim(equivalent),
+                        reference.salt.as_deref().unwrap_or(&reference.label)
+                    ));
+                    g.mg += equivalent;
+                    g.counted.push(e.source.clone());
+                }
+                None => g.uncounted.push((e.source.clone(), "its product has no elemental calcium content")),
+            },
+            None => g.uncounted.push((e.source.clone(), "its salt is not in the formulary")),
         }
     }
-    (mg, counted, uncounted)
+    g
 }
 
 fn infusion(
@@ -442,7 +483,8 @@ fn infusion(
     let mg_h_given = ml_h * conc;
     // Daily maximum: the chosen source's upper rate over 24 h (derived).
     let daily_max = d.high * 24.0 * w.kg;
-    let (given, counted, uncounted) = given_last_24h(facts);
+    let already = given_last_24h(rules, facts, p);
+    let given = already.mg;
     let dilution_text = format!(
         "the label's continuous dilution is {}-{} mg/mL",
         num_trim(rules.calcium_gluconate_administration.continuous_dilution_mg_per_ml[0]),
@@ -466,15 +508,21 @@ fn infusion(
         num_trim(mg_h_given * 24.0),
         inf.monitoring
     );
-    if !counted.is_empty() || !uncounted.is_empty() {
+    if !already.counted.is_empty() || !already.uncounted.is_empty() {
         text.push_str(&format!(
-            " Already given in the last 24 h: {} mg recorded in {} administration(s){}.",
+            " Already given in the last 24 h: {} mg recorded in {} administration(s){}{}.",
             num_trim(given),
-            counted.len(),
-            if uncounted.is_empty() {
+            already.counted.len(),
+            if already.conversions.is_empty() {
                 String::new()
             } else {
-                format!("; {} more without a dose in mg were not counted", uncounted.len())
+                format!(" ({})", already.conversions.join("; "))
+            },
+            if already.uncounted.is_empty() {
+                String::new()
+            } else {
+                let why: Vec<String> = already.uncounted.iter().map(|(s, r)| format!("{}: {r}", s.label())).collect();
+                format!("; not counted: {}", why.join("; "))
             }
         ));
     }
@@ -493,7 +541,7 @@ fn infusion(
                 num_trim(daily_max),
                 d.source
             ),
-            implicated: counted,
+            implicated: already.counted,
             mitigation: "Lower the infusion rate or shorten it, check ionized calcium, and review with the treating clinician.".into(),
         });
     }
@@ -1468,6 +1516,42 @@ mod tests {
         e.source.resource_type = resource_type.into();
         e.in_progress = in_progress;
         e
+    }
+
+    /// A completed IV calcium administration of `mg` with an ATC code, `hours_ago`.
+    fn given_as(atc: &str, mg: f64, hours_ago: i64, id: &str) -> CodedEvent {
+        let mut e = med("calcium_preparations", "MedicationAdministration", hours_ago, false, id);
+        e.code = crate::clinical::facts::Code {
+            system: "http://www.whocc.no/atc".into(),
+            code: atc.into(),
+            display: atc.into(),
+        };
+        e.dose_mg = Some(mg);
+        e
+    }
+
+    #[test]
+    fn calcium_already_given_is_counted_by_its_elemental_calcium_not_its_salt_mass() {
+        // 22 kg, 7 years: infusion 8 mg/kg/h (US label, child, low end) = 176 mg/h gluconate,
+        // 4224 mg over 24 h; daily maximum 13 mg/kg/h x 24 h x 22 kg = 6864 mg gluconate.
+        // 800 mg calcium chloride = 800 x 27.3/100 = 218.4 mg elemental = 218.4 / (9.3/100)
+        // = 2348.39 mg gluconate equivalent; 4224 + 2348.39 = 6572.39 < 6864: no alert.
+        // Counted as salt mass (800 mg) it would be lower still, so take 1000 mg chloride:
+        // 2935.48 mg equivalent, 4224 + 2935.48 = 7159.48 > 6864: the alert. The same 1000 mg
+        // counted as if gluconate (4224 + 1000 = 5224) would have stayed silent.
+        let p = iv_plan_with(vec![given_as("B05XA07", 1000.0, 3, "cl")]);
+        let issue =
+            p.issues.iter().find(|i| i.key == "daily-maximum").expect("the chloride dose counts by its calcium");
+        assert!(issue.detail.contains("2935.48"), "{}", issue.detail);
+        let inf = p.proposals.iter().find(|x| x.key == "calcium-infusion").unwrap();
+        assert!(inf.text.contains("1000 mg calcium chloride, dihydrate = 273 mg elemental calcium = 2935.48 mg calcium gluconate equivalent"), "{}", inf.text);
+        let p = iv_plan_with(vec![given_as("B05XA07", 800.0, 3, "cl")]);
+        assert!(p.issues.iter().all(|i| i.key != "daily-maximum"));
+        // Gluconate counts as it is; an oral carbonate dose is listed, not counted.
+        let p = iv_plan_with(vec![given_as("A12AA03", 2700.0, 3, "glu"), given_as("A12AA04", 1250.0, 2, "oral")]);
+        assert!(p.issues.iter().any(|i| i.key == "daily-maximum"), "4224 + 2700 = 6924 > 6864");
+        let inf = p.proposals.iter().find(|x| x.key == "calcium-infusion").unwrap();
+        assert!(inf.text.contains("not part of the IV maximum"), "{}", inf.text);
     }
 
     /// The IV calcium plan for a 7-year-old of 22 kg (ionized 0.85: bolus) with these records.
