@@ -381,7 +381,7 @@ async function main() {
       if (!trace) {
         assert(shown === 0, `page shows ${shown} steps but the Bundle has no trace`);
         const note = await text(page, '[data-testid="explain-absent"]');
-        throw new Skip(`the result Bundle has no explain Parameters yet; the page says: "${note}"`);
+        throw new Error(`the result Bundle has no explain Parameters; the page says: "${note}"`);
       }
       assert(expected >= 1, 'the trace has no step');
       assert(shown === expected, `page shows ${shown} steps, the trace has ${expected}`);
@@ -467,7 +467,7 @@ async function main() {
       if (scenariosStatus === 404) {
         const t = await text(page, '#scenario-status');
         assert(/scenarios unavailable/i.test(t), `page does not say scenarios are unavailable: "${t}"`);
-        throw new Skip('GET /workbench/scenarios answers 404 (no scenario route in this binary); the page says "Scenarios unavailable"');
+        throw new Error('GET /workbench/scenarios answers 404; the page says "Scenarios unavailable"');
       }
       assert(scenariosStatus === 200, `GET /workbench/scenarios answered ${scenariosStatus}`);
       await page.waitForSelector('#scenario-status[data-state="ready"]');
@@ -492,7 +492,7 @@ async function main() {
     });
 
     await pageCheck('a bad synthetic age is refused with a reason', async () => {
-      if (scenariosStatus === 404) throw new Skip('GET /workbench/scenarios answers 404');
+      if (scenariosStatus === 404) throw new Error('GET /workbench/scenarios answers 404');
       await page.fill('#synth-age', 'twelve');
       await page.click('#make-bundle');
       await page.waitForFunction(() => document.getElementById('scenario-status').getAttribute('data-state') !== 'busy');
