@@ -39,10 +39,13 @@ impl std::fmt::Display for Problem {
 
 /// Load `text` (named `name`) over the defaults; the rules, or every problem located.
 pub fn check_site(name: &str, text: &str) -> Result<LoadedRules, Vec<Problem>> {
-    load::load(Some((name, text))).map_err(|e| problems(name, text, &e))
+    load::load(Some((name, text))).map_err(|e| {
+        let merged = load::merged_document(Some((name, text)), load::SiteName::AsWritten).ok();
+        problems(name, text, &e, merged.as_ref())
+    })
 }
 
-fn problems(name: &str, text: &str, err: &RuleError) -> Vec<Problem> {
+fn problems(name: &str, text: &str, err: &RuleError, merged: Option<&Value>) -> Vec<Problem> {
     match err {
         RuleError::Syntax { file, message } => {
             vec![Problem {
@@ -59,7 +62,7 @@ fn problems(name: &str, text: &str, err: &RuleError) -> Vec<Problem> {
                 let l = l.strip_prefix("at ").unwrap_or(l);
                 let (path, message) = l.split_once(": ").unwrap_or(("", l));
                 let path = path.trim().to_owned();
-                match locate(text, &path) {
+                match locate_in(text, &path, merged) {
                     Some(line) => {
                         Problem { file: name.to_owned(), line: Some(line), path, message: message.to_owned() }
                     }
@@ -88,25 +91,64 @@ fn syntax_line(message: &str) -> Option<usize> {
 /// line of the one before; the line of the deepest one found. None when the
 /// file names none of them (the value is from the defaults).
 pub fn locate(text: &str, path: &str) -> Option<usize> {
-    let segments: Vec<String> = path
-        .split(['.', '['])
-        .map(|s| s.trim_end_matches(']').trim().to_owned())
-        .filter(|s| !s.is_empty() && !s.chars().all(|c| c.is_ascii_digit()))
-        .collect();
+    locate_in(text, path, None)
+}
+
+/// As `locate`; with the merged document, an index into an array of tables
+/// (`causes[20]`) is resolved to that entry's key (`id`, `analyte` or `code`)
+/// and the search goes on inside the site file's `[[causes]]` entry with that
+/// key, since the merged index is not the entry's place in the file.
+pub fn locate_in(text: &str, path: &str, merged: Option<&Value>) -> Option<usize> {
     let lines: Vec<&str> = text.lines().collect();
     let mut from = 0;
     let mut found = None;
-    for seg in &segments {
-        let hit = lines.iter().enumerate().skip(from).find(|(_, l)| names(l, seg));
-        match hit {
-            Some((i, _)) => {
-                found = Some(i + 1);
-                from = i + 1;
+    let mut node = merged;
+    for part in path.split('.').map(str::trim).filter(|p| !p.is_empty()) {
+        let (name, indices) = match part.split_once('[') {
+            Some((n, rest)) => {
+                (n, rest.split('[').filter_map(|i| i.trim_end_matches(']').parse::<usize>().ok()).collect())
             }
-            None => continue,
+            None => (part, Vec::new()),
+        };
+        node = node.and_then(|n| n.get(name));
+        let entry = match indices.first() {
+            Some(i) => node.and_then(|n| n.get(*i)),
+            None => None,
+        };
+        let keyed = entry.and_then(|e| {
+            ["id", "analyte", "code"].iter().find_map(|k| e.get(*k).and_then(Value::as_str).map(|v| (*k, v)))
+        });
+        let hit = match keyed {
+            Some((key, value)) => entry_header(&lines, from, name, key, value),
+            None => lines.iter().enumerate().skip(from).find(|(_, l)| names(l, name)).map(|(i, _)| i),
+        };
+        if let Some(i) = hit {
+            found = Some(i + 1);
+            from = i + 1;
         }
+        node = if indices.is_empty() { node } else { entry };
     }
     found
+}
+
+/// The line index of the `[[name]]` header whose entry sets `key = "value"`.
+fn entry_header(lines: &[&str], from: usize, name: &str, key: &str, value: &str) -> Option<usize> {
+    let header = format!("[[{name}]]");
+    let mut current = None;
+    for (i, l) in lines.iter().enumerate().skip(from) {
+        let t = l.trim();
+        if t.starts_with("[[") || (t.starts_with('[') && !t.starts_with(&format!("[{name}."))) {
+            current = (t.replace(' ', "") == header).then_some(i);
+            continue;
+        }
+        if let (Some(h), Some((k, v))) = (current, t.split_once('='))
+            && k.trim() == key
+            && v.trim().trim_matches('"') == value
+        {
+            return Some(h);
+        }
+    }
+    None
 }
 
 /// Whether a TOML line names `seg`: a key `seg = ...` or a header `[a.seg]` / `[[seg]]`.
@@ -246,6 +288,16 @@ mod tests {
         let problems = check_site("larkspur.toml", "[ruleset]\nversion = \n").expect_err("not TOML");
         assert_eq!(problems.len(), 1);
         assert_eq!(problems[0].line, Some(2), "{}", problems[0]);
+    }
+
+    #[test]
+    fn a_problem_in_a_later_array_entry_points_at_that_entry() {
+        // Two site causes; the second has a bad effect. Its merged index (after the 19
+        // default causes) is not its place in the file: the line is that of its own entry.
+        let site = "[[causes]]\nid = \"aa\"\nlabel = \"A\"\nsource = \"s\"\nfindings = [ { lab = \"phosphate\", is = \"low\", effect = \"for\", source = \"s\" } ]\n\n[[causes]]\nid = \"zz\"\nlabel = \"Z\"\nsource = \"s\"\nfindings = [ { lab = \"phosphate\", is = \"low\", effect = \"sideways\", source = \"s\" } ]\n";
+        let problems = check_site("larkspur.toml", site).expect_err("refused");
+        assert_eq!(problems.len(), 1, "{problems:?}");
+        assert_eq!(problems[0].line, Some(11), "{}", problems[0]);
     }
 
     #[test]
