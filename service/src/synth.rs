@@ -14,11 +14,12 @@ use std::collections::BTreeMap;
 use serde::Deserialize;
 use serde_json::{Map, Value, json};
 
+use crate::clinical::bands::at_least;
 use crate::clinical::facts::{Analyte, Symptom};
 use crate::clinical::growth;
 use crate::clinical::time::{Age, CivilDate, PartialDate, When};
 use crate::fhir::datetime::format_instant;
-use crate::rules::model::{AgeBand, AgeBound, AgeUnit, CodeListKind, Interval, RuleSet, SexRestriction};
+use crate::rules::model::{AgeBand, CodeListKind, Interval, RuleSet, SexRestriction};
 use crate::rules::treatment_model::GrowthReference;
 
 const SCENARIOS: &str = include_str!("../synth/scenarios.toml");
@@ -462,15 +463,6 @@ fn pick<'a>(rng: &mut Rng, list: &'a [&'a str]) -> &'a str {
 fn round_to(v: f64, decimals: u32) -> f64 {
     let f = 10f64.powi(decimals as i32);
     (v * f).round() / f
-}
-
-fn at_least(age: Age, b: AgeBound) -> bool {
-    let n = match b.unit {
-        AgeUnit::Days => age.days,
-        AgeUnit::Months => age.months,
-        AgeUnit::Years => age.years,
-    };
-    n >= i64::from(b.value)
 }
 
 struct Maker<'a> {

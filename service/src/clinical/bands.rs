@@ -38,7 +38,8 @@ fn units_of(age: Age, unit: AgeUnit) -> i64 {
     }
 }
 
-fn at_least(age: Age, bound: AgeBound) -> bool {
+/// The age has reached the bound (in the bound's unit, completed).
+pub fn at_least(age: Age, bound: AgeBound) -> bool {
     units_of(age, bound.unit) >= i64::from(bound.value)
 }
 

@@ -13,9 +13,7 @@ use std::collections::BTreeMap;
 use super::facts::{Analyte, CodedEvent, EventKind, Facts, Gender, Measurement, Source};
 use super::format::num;
 use super::time::{Age, PartialDate, When};
-use crate::rules::model::{
-    AgeBound, AgeSpan, AgeUnit, Cause, CauseFinding, Effect, LabOutcome, RuleSet, SexRestriction,
-};
+use crate::rules::model::{AgeSpan, Cause, CauseFinding, Effect, LabOutcome, RuleSet, SexRestriction};
 
 /// A cause's label.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord)]
@@ -145,14 +143,7 @@ impl Context {
     }
 }
 
-fn at_least(age: Age, bound: AgeBound) -> bool {
-    let n = match bound.unit {
-        AgeUnit::Days => age.days,
-        AgeUnit::Months => age.months,
-        AgeUnit::Years => age.years,
-    };
-    n >= i64::from(bound.value)
-}
+use super::bands::at_least;
 
 fn sex_fits(sex: SexRestriction, gender: Gender) -> bool {
     match sex {
