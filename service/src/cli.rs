@@ -306,7 +306,11 @@ fn assess(args: &AssessArgs) -> ExitCode {
     match engine.assess_with(&body, now, fixed, args.explain) {
         Ok(outcome) => {
             if let Some(steps) = &outcome.trace {
-                let _ = write!(std::io::stderr().lock(), "{}", crate::clinical::explain::text(steps));
+                let _ = write!(
+                    std::io::stderr().lock(),
+                    "{}",
+                    crate::clinical::explain::text(steps, &engine.rules.rules.texts.advisory)
+                );
             }
             out!("{}", serde_json::to_string_pretty(&outcome.bundle).unwrap_or_default());
             ExitCode::SUCCESS

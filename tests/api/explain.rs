@@ -73,6 +73,18 @@ fn the_cli_prints_a_readable_trace_and_the_bundle_carries_it_as_parameters() {
     assert!(text.contains("[bands.child]") && text.contains("0.82 mmol/L"), "{text}");
     assert!(text.contains("severe (at or below 0.90 mmol/L"), "{text}");
     assert!(text.contains("12.1 kg"), "{text}");
+    // The trace is read on its own, so it carries the advisory caution: first on the
+    // CLI, and as the Parameters' `advisory` part.
+    let caution = calcium_cds::rules::model::ADVISORY_CAUTION;
+    assert!(text.starts_with(caution), "{text}");
+    let advisory = trace_parameters(&bundle)[0]["parameter"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|x| x["name"] == "advisory")
+        .and_then(|x| x["valueString"].as_str())
+        .map(str::to_owned);
+    assert_eq!(advisory.as_deref(), Some(caution));
     let s = steps(&bundle);
     // Every cause of the rules is weighed in the trace, and every safety check is listed.
     let causes = s.iter().filter(|x| x.0 == "causes" && x.1.starts_with("causes.")).count();
@@ -131,7 +143,14 @@ fn a_site_value_shows_in_the_trace_basis() {
 #[tokio::test]
 async fn the_http_operation_adds_the_trace_only_when_asked_and_refuses_a_bad_flag() {
     let app = spawn_app().await;
-    let body = std::fs::read_to_string(repo_path("fhir-profiles/examples/parameters-wrapper.json")).unwrap();
+    // The example's own clock: without it the trace depends on today's date (the
+    // calcium result would be set aside as too old a few days after the example's date).
+    let mut wrapper: Value = serde_json::from_str(
+        &std::fs::read_to_string(repo_path("fhir-profiles/examples/parameters-wrapper.json")).unwrap(),
+    )
+    .unwrap();
+    wrapper["parameter"].as_array_mut().unwrap().push(serde_json::json!({ "name": "now", "valueDateTime": NOW }));
+    let body = wrapper.to_string();
     let post = |query: &'static str| {
         let client = app.client.clone();
         let url = format!("{}/fhir/$assess{query}", app.address);

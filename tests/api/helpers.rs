@@ -319,6 +319,20 @@ pub fn example(name: &str) -> String {
     std::fs::read_to_string(&path).unwrap_or_else(|e| panic!("cannot read {}: {e}", path.display()))
 }
 
+/// An example Bundle wrapped in Parameters with `now` = [`EXAMPLE_NOW`], so that an
+/// HTTP test assesses it as of the example's own clock, not today's.
+pub fn example_at_now(name: &str) -> String {
+    let bundle: Value = serde_json::from_str(&example(name)).unwrap_or_else(|e| panic!("{name}: {e}"));
+    serde_json::json!({
+        "resourceType": "Parameters",
+        "parameter": [
+            { "name": "bundle", "resource": bundle },
+            { "name": "now", "valueDateTime": EXAMPLE_NOW },
+        ],
+    })
+    .to_string()
+}
+
 // ---------------------------------------------------------------------------
 // Reading result Bundles
 

@@ -101,6 +101,45 @@ fn rules_check_points_at_the_line_of_a_bad_value() {
 }
 
 #[test]
+fn a_site_file_cannot_replace_the_advisory_caution_only_add_after_it() {
+    // Replacing the caution is refused by `rules check` and by `assess`, at its line.
+    let replace = temp_file(
+        "replace-caution.toml",
+        "[ruleset]\nversion = \"larkspur-x\"\n\n[texts]\nadvisory = \"Follow this.\"\n",
+    );
+    let out = run(&["rules", "check", replace.to_str().unwrap()]);
+    let t = text(&out);
+    assert_eq!(out.status.code(), Some(1), "{t}");
+    assert!(t.contains("texts.advisory") && t.contains("cannot be replaced"), "{t}");
+    let case = repo_path("fhir-profiles/examples/ionized-low-seizure-toddler.json");
+    let out =
+        run(&["assess", case.to_str().unwrap(), "--now", "2026-11-30T15:00:00Z", "--rules", replace.to_str().unwrap()]);
+    assert!(!out.status.success(), "a replaced caution never reaches an answer");
+    // A site note is added after the fixed caution, in every resource that carries it.
+    let note = "Larkspur Children's: page the on-call pharmacist before any IV calcium.";
+    let add = temp_file("add-note.toml", &format!("[texts]\nsite_note = \"{note}\"\n"));
+    let out = run(&["rules", "check", add.to_str().unwrap()]);
+    assert!(out.status.success(), "{}", text(&out));
+    let out = run(&[
+        "assess",
+        case.to_str().unwrap(),
+        "--now",
+        "2026-11-30T15:00:00Z",
+        "--rules",
+        add.to_str().unwrap(),
+        "--explain",
+    ]);
+    assert!(out.status.success(), "{}", text(&out));
+    let body = String::from_utf8_lossy(&out.stdout);
+    let combined = format!("{} {note}", calcium_cds::rules::model::ADVISORY_CAUTION);
+    let fixed_count = body.matches(calcium_cds::rules::model::ADVISORY_CAUTION).count();
+    assert!(fixed_count > 3, "the caution is in the GuidanceResponse, proposals, issues and trace: {fixed_count}");
+    assert_eq!(body.matches(&combined).count(), fixed_count, "every caution is followed by the site note");
+    // The explain text on stderr opens with the caution and the note.
+    assert!(String::from_utf8_lossy(&out.stderr).starts_with(&combined), "{}", String::from_utf8_lossy(&out.stderr));
+}
+
+#[test]
 fn rules_show_marks_site_values_and_rules_diff_lists_them() {
     let site = temp_file("show.toml", STEEPER_SLOPE);
     let out = run(&["rules", "show", "--rules", site.to_str().unwrap()]);

@@ -693,10 +693,12 @@ now = "{NOW}"
 # 8 pg/mL x 2.4 = 19.2 pmol/L, below the 0-16 y interval 57.6-206.4 pmol/L (lab-ranges.toml);
 # 34 ng/mL x 2.496 = 84.9 nmol/L, sufficient (> 50 nmol/L, Munns 2016); PTH 22 > 6.25 pmol/L (1-10 y);
 # phosphate 0.8 < 0.90 mmol/L (1-16 y). Type 1: low 1,25 +3 (strong_for), normal 25-OH D +1, high PTH +1 = 5: likely.
-# Type 2 is ruled out: a low 1,25-(OH)2D excludes end-organ resistance (causes.toml, vddr_type2).
+# Type 2 stays possible behind type 1: a low 1,25-(OH)2D argues strongly against end-organ
+# resistance (-3) without excluding it, since the published tables disagree (Merck: normal or
+# high; a rickets-types table, PMC7335963 Table 2: normal or low); -3 + 1 + 1 = -1.
 severity = "moderate"
 leading_cause = "vddr_type1"
-causes_ruled_out = ["vitamin_d_deficiency", "hypoparathyroidism", "vddr_type2"]
+causes_ruled_out = ["vitamin_d_deficiency", "hypoparathyroidism"]
 proposals = ["oral-calcium", "calcitriol"]
 proposals_absent = ["cholecalciferol"]
 ''', SITE)

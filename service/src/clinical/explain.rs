@@ -473,9 +473,10 @@ fn treatment_steps(rules: &RuleSet, a: &Assessment, plan: &TreatmentPlan, steps:
     }
 }
 
-/// The trace as readable text (the CLI's `assess --explain`).
-pub fn text(steps: &[Step]) -> String {
-    let mut out = String::new();
+/// The trace as readable text (the CLI's `assess --explain`), opening with the
+/// advisory caution.
+pub fn text(steps: &[Step], advisory: &str) -> String {
+    let mut out = format!("{advisory}\n");
     let mut stage = None;
     for s in steps {
         if stage != Some(s.stage) {

@@ -66,6 +66,9 @@ pub fn parameters(ctx: &OutputContext<'_>, steps: &[Step]) -> Value {
         string("version", &rules.version),
         string("hash", &format!("sha256:{}", ctx.rules.sha256)),
     ]})];
+    // The trace is read on its own (workbench, `--explain`), so it carries the
+    // advisory caution too.
+    params.push(string("advisory", &ctx.rules.rules.texts.advisory));
     params.extend(steps.iter().map(step_part));
     json!({
         "resourceType": "Parameters",

@@ -170,10 +170,22 @@ pub fn from_document(doc: Value) -> Result<LoadedRules, RuleError> {
         .iter_errors(&doc)
         .map(|e| format!("  at {}: {}", pointer_to_path(e.instance_path().as_str()), e))
         .collect();
+    let mut errors = errors;
+    if doc.pointer("/texts/advisory").is_some() {
+        // Said plainly rather than as the schema's "additional property".
+        errors.insert(
+            0,
+            "  at texts.advisory: the advisory caution is fixed and cannot be replaced or removed by rule data; \
+             a site adds its own text after it with texts.site_note"
+                .to_owned(),
+        );
+    }
     if !errors.is_empty() {
         return Err(RuleError::Schema(errors));
     }
-    let rules: RuleSet = serde_json::from_value(doc.clone()).map_err(|e| RuleError::Schema(vec![format!("  {e}")]))?;
+    let mut rules: RuleSet =
+        serde_json::from_value(doc.clone()).map_err(|e| RuleError::Schema(vec![format!("  {e}")]))?;
+    rules.texts.compose();
     consistency(&rules)?;
     // serde_json's map is ordered by key, so this serialisation is canonical.
     let canonical = serde_json::to_vec(&doc).map_err(|e| RuleError::Schema(vec![e.to_string()]))?;
@@ -520,6 +532,21 @@ mod tests {
         assert_eq!(loaded.rules.ruleset.site.as_deref(), Some("site.toml"));
         assert_eq!(loaded.rules.observation_codes.len(), base.rules.observation_codes.len() + 1);
         assert_ne!(loaded.sha256, base.sha256);
+    }
+
+    #[test]
+    fn the_advisory_caution_is_fixed_and_a_site_note_follows_it() {
+        let base = load(None).unwrap();
+        assert_eq!(base.rules.texts.advisory, super::super::model::ADVISORY_CAUTION);
+        let err = load(Some(("site.toml", "[texts]\nadvisory = \"Just do it.\"\n"))).unwrap_err();
+        assert!(err.to_string().contains("texts.advisory: the advisory caution is fixed"), "{err}");
+        // An empty replacement is refused the same way (it would remove the caution).
+        assert!(load(Some(("site.toml", "[texts]\nadvisory = \"\"\n"))).is_err());
+        let noted = load(Some(("site.toml", "[texts]\nsite_note = \"Call pharmacy on 4411.\"\n"))).unwrap();
+        assert_eq!(
+            noted.rules.texts.advisory,
+            format!("{} Call pharmacy on 4411.", super::super::model::ADVISORY_CAUTION)
+        );
     }
 
     #[test]

@@ -463,12 +463,34 @@ pub struct PlannerRules {
     pub source: String,
 }
 
-/// Fixed texts.
+/// The advisory caution every output carries. It is fixed in the program, not
+/// rule data: a site file cannot replace or remove it (DEVELOPERS.md: the
+/// advisory caution); a site may only add its own text after it
+/// (`texts.site_note`).
+pub const ADVISORY_CAUTION: &str = "Advisory only: this is computer-generated decision support for licensed clinicians, not a diagnosis or an order. Follow local protocols and formulary, check the basis shown, and confirm with the treating clinician before acting.";
+
+/// Texts carried by the output.
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct Texts {
-    /// The advisory statement carried by every GuidanceResponse and DetectedIssue.
+    /// A site's own text, shown after the fixed caution (never instead of it).
+    #[serde(default)]
+    pub site_note: Option<String>,
+    /// The advisory statement carried by every GuidanceResponse, DetectedIssue
+    /// and explain trace: [`ADVISORY_CAUTION`], then the site note if any. Not
+    /// read from rule data; set by [`Texts::compose`] when the rules load.
+    #[serde(skip)]
     pub advisory: String,
+}
+
+impl Texts {
+    /// Sets `advisory` to the fixed caution followed by the site note.
+    pub fn compose(&mut self) {
+        self.advisory = match self.site_note.as_deref().map(str::trim).filter(|n| !n.is_empty()) {
+            Some(note) => format!("{ADVISORY_CAUTION} {note}"),
+            None => ADVISORY_CAUTION.to_owned(),
+        };
+    }
 }
 
 /// Name and version.
