@@ -365,6 +365,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         &calcium.when,
         facts.gestational_age_weeks,
         facts.patient.birth_instant,
+        facts.birth_weight_kg,
     ) {
         Ok(c) => c,
         Err(NoBand::BornAfterResult) => {
