@@ -224,7 +224,10 @@ mod tests {
             .collect();
         assert_eq!(ionized, [1.0, 1.1]);
         // Older than 28 days: the birth weight no longer matters.
-        assert_eq!(choose(&r, birth, &on(2027, 1, 15), Some(28.0), None, Some(1.1)).unwrap().candidates[0].id, "infant");
+        assert_eq!(
+            choose(&r, birth, &on(2027, 1, 15), Some(28.0), None, Some(1.1)).unwrap().candidates[0].id,
+            "infant"
+        );
     }
 
     #[test]
@@ -245,6 +248,9 @@ mod tests {
     #[test]
     fn a_birth_date_after_the_result_is_refused() {
         let r = rules();
-        assert_eq!(choose(&r, full(2026, 12, 1), &on(2026, 11, 30), None, None, None).unwrap_err(), NoBand::BornAfterResult);
+        assert_eq!(
+            choose(&r, full(2026, 12, 1), &on(2026, 11, 30), None, None, None).unwrap_err(),
+            NoBand::BornAfterResult
+        );
     }
 }

@@ -250,6 +250,10 @@ fn status_steps(rules: &RuleSet, a: &Assessment, steps: &mut Vec<Step>) {
         num(f.interval.upper, 2),
         f.interval.source
     );
+    for note in &f.interval.band_notes {
+        s.basis.push(' ');
+        s.basis.push_str(note);
+    }
     s.result = match f.classification {
         Classification::Low => "below the interval: hypocalcemia".to_owned(),
         Classification::Normal => "inside the interval".to_owned(),

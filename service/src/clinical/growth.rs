@@ -136,16 +136,23 @@ pub fn preterm_lms_at(table: &PretermReference, weeks: f64) -> Option<(f64, f64,
 /// `preterm_table_until_weeks`, then the term references by corrected age;
 /// otherwise (term, or gestation unknown: `None`) the term references by
 /// chronological age. Plain LMS z on the preterm table (as rcpchgrowth).
-pub fn weight_z(rules: &RuleSet, sex: &str, age_days: i64, gestation_weeks: Option<f64>, weight_kg: f64) -> Option<ZScore> {
+pub fn weight_z(
+    rules: &RuleSet,
+    sex: &str,
+    age_days: i64,
+    gestation_weeks: Option<f64>,
+    weight_kg: f64,
+) -> Option<ZScore> {
     let p = &rules.growth_policy;
     let Some(ga) = gestation_weeks.filter(|g| *g < p.preterm_below_weeks) else {
         return weight_for_age_z(rules, sex, months_from_days(age_days), weight_kg);
     };
     let pma = ga + age_days as f64 / 7.0;
     if pma < p.preterm_table_until_weeks {
-        let table = rules.preterm_references.iter().find(|t| {
-            t.sex == sex && t.measure == "weight" && pma >= t.from_weeks && pma <= t.until_weeks
-        })?;
+        let table = rules
+            .preterm_references
+            .iter()
+            .find(|t| t.sex == sex && t.measure == "weight" && pma >= t.from_weeks && pma <= t.until_weeks)?;
         let (l, m, s) = preterm_lms_at(table, pma)?;
         let z = lms_z(weight_kg, l, m, s);
         return Some(ZScore {

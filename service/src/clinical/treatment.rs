@@ -273,10 +273,7 @@ fn slip(rules: &RuleSet, facts: &Facts, ctx: &Context, kg: f64, factors: &[(f64,
     factors.iter().find_map(|(f, what)| {
         let v = kg * f;
         (v >= rules.growth_policy.lightest_possible_kg
-            && matches!(
-                verdict(rules, facts, ctx, v),
-                Verdict::Plausible(_) | Verdict::LowUnlessPreterm { .. }
-            ))
+            && matches!(verdict(rules, facts, ctx, v), Verdict::Plausible(_) | Verdict::LowUnlessPreterm { .. }))
         .then(|| format!("{what} ({} kg would be plausible)", num_trim_sig(v)))
     })
 }
@@ -1524,7 +1521,11 @@ mod tests {
             if let Some(kg) = kg {
                 // 95 kg at 7 years: too heavy, and 9.5 kg would be too light: implausible.
                 // 4 kg at 7 years: 40 kg would be plausible: a misplaced decimal point.
-                assert!(issue.detail.contains("Implausible weight for the age") && issue.detail.contains("z ="), "{}", issue.detail);
+                assert!(
+                    issue.detail.contains("Implausible weight for the age") && issue.detail.contains("z ="),
+                    "{}",
+                    issue.detail
+                );
                 if kg < 50.0 {
                     assert!(issue.detail.contains("It may be a misplaced decimal point (40 kg"), "{}", issue.detail);
                 }
@@ -1580,7 +1581,11 @@ mod tests {
         assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"), "{:?}", p.issues);
         let i = p.issues.iter().find(|i| i.key == "weight-confirm").expect("a confirm-weight caution");
         assert_eq!(i.severity, IssueSeverity::Moderate);
-        assert!(i.detail.contains("gestational age at birth is not recorded") && i.detail.contains("born preterm at"), "{}", i.detail);
+        assert!(
+            i.detail.contains("gestational age at birth is not recorded") && i.detail.contains("born preterm at"),
+            "{}",
+            i.detail
+        );
         assert!(!p.issues.iter().any(|i| i.key == "weight"));
         // The bolus uses 1.1 kg.
         assert!(find(&p, "calcium-bolus").text.starts_with("1.1 kg x "), "{}", find(&p, "calcium-bolus").text);
@@ -1596,7 +1601,10 @@ mod tests {
         };
         // 1100 "kg" for a 3-day-old: 1100 g = 1.1 kg would be plausible (preterm).
         let d = refused(&neonate_plan(3, Gender::Female, None, 1100.0));
-        assert!(d.starts_with("No weight-based dose is proposed. Unit slip") && d.contains("grams entered as kilograms"), "{d}");
+        assert!(
+            d.starts_with("No weight-based dose is proposed. Unit slip") && d.contains("grams entered as kilograms"),
+            "{d}"
+        );
         assert!(d.contains("1.1 kg would be plausible"), "{d}");
         // 0.15 kg: below the 0.2 kg floor, physically impossible (and 150 kg is no newborn).
         let d = refused(&neonate_plan(3, Gender::Female, Some(26.0), 0.15));
@@ -1604,7 +1612,10 @@ mod tests {
         // 180 kg at 2 years: 18 kg would be plausible: a misplaced decimal point.
         let p = run(shared_rules(), born_days_ago(2 * 365 + 10), 0.85, Some(180.0));
         let d = refused(&p);
-        assert!(d.contains("Implausible weight for the age") && d.contains("It may be a misplaced decimal point (18 kg"), "{d}");
+        assert!(
+            d.contains("Implausible weight for the age") && d.contains("It may be a misplaced decimal point (18 kg"),
+            "{d}"
+        );
         // A 27-week baby of 3.5 kg on day 3 is beyond +5 on the preterm table; 3.5 g is no weight.
         let d = refused(&neonate_plan(3, Gender::Male, Some(27.0), 3.5));
         assert!(d.contains("Implausible weight for the age") && d.contains("postmenstrual"), "{d}");

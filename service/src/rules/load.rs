@@ -426,7 +426,8 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
         ));
     }
     if !nf.warn_share.is_finite() || nf.warn_share <= 0.0 || nf.warn_share > 1.0 {
-        problems.push(format!("  treatment.neonatal_fluid.warn_share: {} must be above 0 and at most 1", nf.warn_share));
+        problems
+            .push(format!("  treatment.neonatal_fluid.warn_share: {} must be above 0 and at most 1", nf.warn_share));
     }
     if !t.infusion.makeup_ml.is_finite() || t.infusion.makeup_ml <= 0.0 {
         problems.push(format!("  treatment.infusion.makeup_ml: {} is not positive", t.infusion.makeup_ml));
