@@ -165,7 +165,8 @@ fn the_band_step_says_why_a_neonate_is_judged_on_the_birth_weight_limits() {
     let band =
         text.lines().skip_while(|l| !l.starts_with("[bands.vlbw-neonate]")).take(4).collect::<Vec<_>>().join("\n");
     assert!(band.contains("Birth weight 1.2 kg is below 1.5 kg"), "{band}");
-    let (_, text) = assess("tests/cases/neonate-1100g-gestation-unknown-seizure.json", &["--explain"]);
+    let (bundle, text) = assess("tests/cases/neonate-1100g-gestation-unknown-seizure.json", &["--explain"]);
+    assert_r4_valid(&bundle);
     let weight = text
         .lines()
         .skip_while(|l| !l.contains("Which weight are doses based on?"))
@@ -173,4 +174,11 @@ fn the_band_step_says_why_a_neonate_is_judged_on_the_birth_weight_limits() {
         .collect::<Vec<_>>()
         .join("\n");
     assert!(weight.contains("1.1 kg used; to be confirmed"), "{weight}");
+    // The other new outputs (unit slip refusal, fluid-load warning) are valid R4 too.
+    for file in
+        ["tests/cases/neonate-weight-unit-slip-1100-kg.json", "tests/cases/neonate-term-day1-infusion-fluid-load.json"]
+    {
+        let (bundle, _) = assess(file, &["--explain"]);
+        assert_r4_valid(&bundle);
+    }
 }
