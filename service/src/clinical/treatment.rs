@@ -200,7 +200,7 @@ enum Verdict {
     Plausible(Vec<growth::ZScore>),
     /// Below the term reference limit, gestation not recorded, within the limit
     /// had the baby been born preterm at one of `weeks` (whole weeks from the
-    /// earliest the preterm table covers); `preterm` is the z at the first.
+    /// earliest the preterm table covers); `preterm` is the z nearest the median among them.
     LowUnlessPreterm { term: growth::ZScore, preterm: growth::ZScore, weeks: (f64, f64) },
     /// Beyond the limit above.
     High(growth::ZScore),
@@ -248,8 +248,13 @@ fn verdict(rules: &RuleSet, facts: &Facts, ctx: &Context, kg: f64) -> Verdict {
         }
         if let (Some((from, _)), Some((until, _))) = (fits.first(), fits.last()) {
             let weeks = (*from, *until);
-            let preterm = fits.swap_remove(0).1;
-            return Verdict::LowUnlessPreterm { term: first, preterm, weeks };
+            // The example shown: the gestation where the weight is nearest the median.
+            let closest = fits
+                .into_iter()
+                .map(|(_, z)| z)
+                .min_by(|a, b| a.check_z.abs().total_cmp(&b.check_z.abs()))
+                .unwrap_or_else(|| first.clone());
+            return Verdict::LowUnlessPreterm { term: first, preterm: closest, weeks };
         }
     }
     Verdict::Low(first)
@@ -336,7 +341,7 @@ pub fn dosing_weight(rules: &RuleSet, facts: &Facts, ctx: &Context) -> Result<We
         Verdict::LowUnlessPreterm { term, preterm, weeks } => Ok(make(
             None,
             Some(format!(
-                "The weight {shown} kg is beyond the limit |z| > {} for a baby born at term ({}) and the gestational age at birth is not recorded. It is within the limit for a baby born preterm at {} weeks (for example {}). Doses below use {shown} kg. Confirm the weight and record the gestational age at birth (LOINC 76516-4) so the weight can be judged against it ({}; {}).",
+                "The weight {shown} kg is beyond the limit |z| > {} for a baby born at term ({}) and the gestational age at birth is not recorded. It is within the limit for a baby born preterm at {} weeks (closest to the median: {}). Doses below use {shown} kg. Confirm the weight and record the gestational age at birth (LOINC 76516-4) so the weight can be judged against it ({}; {}).",
                 num_trim(limit_z),
                 z_text(&term),
                 if weeks.0 == weeks.1 {
