@@ -191,3 +191,32 @@ const DAYS_PER_MONTH: f64 = 30.4375;
 pub fn months_from_days(days: i64) -> f64 {
     days as f64 / DAYS_PER_MONTH
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::clinical::testing::{close, shared_rules};
+
+    #[test]
+    fn preterm_babies_use_the_preterm_table_until_42_weeks_then_corrected_age() {
+        let r = shared_rules();
+        // Born at 30 weeks, 83 days old: 30 + 83/7 = 41.857 weeks, still the preterm table.
+        let z = weight_z(r, "male", 83, Some(30.0), 3.5).unwrap();
+        assert!(z.age_text.contains("41.9 weeks postmenstrual"), "{}", z.age_text);
+        // 84 days old: 42 weeks, so WHO by corrected age: 84 - (40 - 30) x 7 = 14 days
+        // = 14 / 30.4375 = 0.459959 months. WHO boys rows 0 [0.3487, 3.3464, 0.14602] and
+        // 1 [0.2297, 4.4709, 0.13395]: L = 0.293965, M = 3.863624, S = 0.140468.
+        // z = ((3.5 / 3.863624)^0.293965 - 1) / (0.293965 x 0.140468)
+        //   = (0.971362 - 1) / 0.041293 = -0.6935.
+        let z = weight_z(r, "male", 84, Some(30.0), 3.5).unwrap();
+        assert!(close(z.z, -0.6935, 0.001), "{}", z.z);
+        assert!(z.age_text.contains("corrected age 0.5 months"), "{}", z.age_text);
+        // Term (37 weeks and over) or unknown: chronological age, as before.
+        let term = weight_for_age_z(r, "male", months_from_days(84), 3.5).unwrap();
+        assert_eq!(weight_z(r, "male", 84, Some(38.0), 3.5).unwrap(), term);
+        assert_eq!(weight_z(r, "male", 84, None, 3.5).unwrap(), term);
+        // Born at 22 weeks, day 2: 22.3 weeks is before the table starts.
+        assert!(weight_z(r, "female", 2, Some(22.0), 0.5).is_none());
+        assert_eq!(earliest_gestation(r), Some(23.0));
+    }
+}
