@@ -54,3 +54,6 @@ mod explain;
 
 // The workbench routes (issue 8); the page itself: tests/workbench/e2e.mjs.
 mod workbench;
+
+// Preterm weight z (UK-WHO preterm table, rcpchgrowth check values) and the dosing-weight rules built on it (issue 13).
+mod reference_preterm;

@@ -92,6 +92,8 @@ pub struct IntervalUsed {
     pub band_id: String,
     /// Band label.
     pub band_label: String,
+    /// Why this band (birth weight, gestation, partial birth date), as the band choice said.
+    pub band_notes: Vec<String>,
     /// Lower limit, mmol/L.
     pub lower: f64,
     /// Upper limit, mmol/L.
@@ -365,6 +367,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         &calcium.when,
         facts.gestational_age_weeks,
         facts.patient.birth_instant,
+        facts.birth_weight_kg,
     ) {
         Ok(c) => c,
         Err(NoBand::BornAfterResult) => {
@@ -440,6 +443,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
     let used = IntervalUsed {
         band_id: band.id.clone(),
         band_label: band.label.clone(),
+        band_notes: choice.notes.clone(),
         lower: interval.lower,
         upper: interval.upper,
         source: interval.source.clone(),
@@ -580,6 +584,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         d.interval = Some(IntervalUsed {
             band_id: band.id.clone(),
             band_label: band.label.clone(),
+            band_notes: choice.notes.clone(),
             lower: band.adjusted.lower,
             upper: band.adjusted.upper,
             source: band.adjusted.source.clone(),

@@ -359,6 +359,7 @@ impl<'a> Reader<'a> {
         let mut symptoms = Vec::new();
         let mut events = Vec::new();
         let mut gestation = None;
+        let mut birth_weight = None;
         for e in &entries {
             if e.index == patient_index {
                 continue;
@@ -380,6 +381,9 @@ impl<'a> Reader<'a> {
             if m.analyte == Analyte::GestationalAgeAtBirth {
                 gestation = Some(m.value);
                 false
+            } else if m.analyte == Analyte::BirthWeight {
+                birth_weight = Some(m.value);
+                false
             } else {
                 true
             }
@@ -392,6 +396,7 @@ impl<'a> Reader<'a> {
                 events,
                 vascular_access: self.access,
                 gestational_age_weeks: gestation,
+                birth_weight_kg: birth_weight,
                 now: self.now,
             },
             patient_reference,
