@@ -17,7 +17,9 @@ use super::growth;
 use super::status::{CalciumFinding, Classification};
 use super::workup::Workup;
 use crate::rules::model::{IssueSeverity, LabOutcome, RuleSet};
-use crate::rules::treatment_model::{Chosen, DoseSource, OralPolicy, Pick, Product, RecencyWindow};
+use crate::rules::treatment_model::{
+    CalciumRateCeiling, Chosen, DoseSource, IvSpeed, OralPolicy, Pick, Product, RecencyWindow,
+};
 
 /// The dosing weight, or why there is none.
 #[derive(Debug, Clone)]
@@ -255,6 +257,116 @@ fn elemental_text(p: &Product, ml: f64) -> String {
     parts.join(", ")
 }
 
+/// The IV speed limits for the age: the span the whole age lies in, or, when the age
+/// straddles a boundary, the strictest of the spans it may lie in (longest shortest
+/// duration, slowest fastest rate).
+fn speed_for(ctx: &Context, list: &[IvSpeed]) -> Option<IvSpeed> {
+    if let Some(s) = list.iter().find(|s| ctx.within(&s.applies) == Some(true)) {
+        return Some(s.clone());
+    }
+    let maybe: Vec<&IvSpeed> = list.iter().filter(|s| ctx.within(&s.applies).is_none()).collect();
+    let mut out = (*maybe.first()?).clone();
+    for s in &maybe[1..] {
+        if s.min_minutes > out.min_minutes {
+            out.min_minutes = s.min_minutes;
+            out.min_minutes_source.clone_from(&s.min_minutes_source);
+        }
+        if s.max_salt_mg_per_min < out.max_salt_mg_per_min {
+            out.max_salt_mg_per_min = s.max_salt_mg_per_min;
+            out.max_rate_source.clone_from(&s.max_rate_source);
+        }
+    }
+    Some(out)
+}
+
+/// The elemental-calcium ceiling for the age (the lowest where the age is uncertain).
+fn calcium_ceiling<'r>(rules: &'r RuleSet, ctx: &Context) -> Option<&'r CalciumRateCeiling> {
+    let list = &rules.treatment.calcium_rate;
+    if let Some(c) = list.iter().find(|c| ctx.within(&c.applies) == Some(true)) {
+        return Some(c);
+    }
+    list.iter()
+        .filter(|c| ctx.within(&c.applies).is_none())
+        .min_by(|a, b| a.max_elemental_mg_per_kg_min.total_cmp(&b.max_elemental_mg_per_kg_min))
+}
+
+/// How long an IV dose takes: the longest of the product's shortest duration, its dose
+/// at its fastest salt rate and, for calcium, its elemental calcium at the common
+/// ceiling; rounded up to whole minutes.
+struct IvTiming {
+    /// Whole minutes.
+    minutes: f64,
+    /// The arithmetic, for the text.
+    text: String,
+}
+
+fn iv_timing(
+    rules: &RuleSet,
+    ctx: &Context,
+    w: &Weight,
+    p: &Product,
+    dose_mg: f64,
+    speed: &IvSpeed,
+    label_max_mg_per_min: f64,
+) -> Option<IvTiming> {
+    let salt_per_unit = p.salt_mg.filter(|v| *v > 0.0)?;
+    let elemental_per_unit = p.elemental_mg.filter(|v| *v > 0.0)?;
+    let elemental = dose_mg * elemental_per_unit / salt_per_unit;
+    let element = p.elemental.as_deref().unwrap_or("");
+    let max_salt = speed.max_salt_mg_per_min.min(label_max_mg_per_min);
+    let by_salt = dose_mg / max_salt;
+    let mut parts = vec![
+        format!("at least {} min ({})", num_trim(speed.min_minutes), speed.min_minutes_source),
+        format!(
+            "no faster than {} mg/min of the salt ({}): {} mg / {} mg/min = {} min",
+            num_trim(max_salt),
+            speed.max_rate_source,
+            num_trim(dose_mg),
+            num_trim(max_salt),
+            num_trim(by_salt)
+        ),
+    ];
+    let mut need = speed.min_minutes.max(by_salt);
+    if element == "calcium" {
+        let c = calcium_ceiling(rules, ctx)?;
+        let per_kg_total = c.max_elemental_mg_per_kg_min * w.kg;
+        let ceiling = c.max_elemental_mg_per_min.min(per_kg_total);
+        let by_calcium = elemental / ceiling;
+        parts.push(format!(
+            "elemental calcium no faster than {} mg/min, the lower of {} mg/min and {} mg/kg/min x {} kg = {} mg/min ({}): {} mg / {} mg/min = {} min",
+            num_trim(ceiling),
+            num_trim(c.max_elemental_mg_per_min),
+            num_trim(c.max_elemental_mg_per_kg_min),
+            num_trim(w.kg),
+            num_trim(per_kg_total),
+            c.source,
+            num_trim(elemental),
+            num_trim(ceiling),
+            num_trim(by_calcium)
+        ));
+        need = need.max(by_calcium);
+    }
+    let minutes = (need - 1e-9).ceil().max(1.0);
+    let per_min = elemental / minutes;
+    let mass = if element == "calcium" {
+        rules.analyte(Analyte::CalciumTotal).and_then(|a| a.molar_mass_g_per_mol)
+    } else {
+        rules.analyte(Analyte::Magnesium).and_then(|a| a.molar_mass_g_per_mol)
+    };
+    let mmol = mass.map_or_else(String::new, |m| format!(", {} mmol/min", num(per_min / m, 3)));
+    let text = format!(
+        "Duration: {}. So over {} min: {} mg elemental {element} / {} min = {} mg elemental {element}/min{mmol} ({} mg/kg/min), {} mg/min of the salt.",
+        parts.join("; "),
+        num_trim(minutes),
+        num_trim(elemental),
+        num_trim(minutes),
+        num_trim(per_min),
+        num(per_min / w.kg, 3),
+        num_trim(dose_mg / minutes)
+    );
+    Some(IvTiming { minutes, text })
+}
+
 /// Build the plan. `None` when no treatment is due (calcium not low).
 pub fn plan(
     rules: &RuleSet,
@@ -274,6 +386,13 @@ pub fn plan(
     let urgent = finding.is_symptomatic() || finding.grade.as_ref().is_some_and(|g| g.severity == IssueSeverity::High);
     let mg_low =
         workup.and_then(|w| w.readings.labs.get(&Analyte::Magnesium)).is_some_and(|r| r.outcome == LabOutcome::Low);
+    let phosphate_high = high_phosphate(rules, facts, &ctx).is_some();
+    let likely = |ids: &[String]| {
+        workup.is_some_and(|w| w.causes.iter().any(|c| c.label == CauseLabel::Likely && ids.contains(&c.id)))
+    };
+    // With a high phosphate and kidney disease the likely cause, oral calcium carbonate is
+    // also the phosphate binder, given with meals (KDOQI pediatric Guideline 6).
+    let binder = phosphate_high && likely(&t.oral.binder_for);
 
     match &weight {
         Err(why) => {
@@ -308,14 +427,19 @@ pub fn plan(
                 } else {
                     plan.notes.push("Calcium chloride is not proposed: it is for a central line only (it irritates veins and causes necrosis if it extravasates), and no central line is recorded.".into());
                 }
-            } else if let Some(p) = oral(rules, &ctx, w, &mut plan.issues) {
+                plan.notes.push(if binder {
+                    format!("{} {}", t.oral.transition, t.oral.binder_advice)
+                } else {
+                    t.oral.transition.clone()
+                });
+            } else if let Some(p) = oral(rules, &ctx, w, binder, &mut plan.issues) {
                 plan.notes.push("Asymptomatic and not severe: oral calcium, no IV calcium.".into());
                 plan.proposals.push(p);
             }
         }
     }
     if let Some(w) = workup {
-        vitamin_d(rules, &ctx, w, &mut plan);
+        vitamin_d(rules, &ctx, w, phosphate_high, &mut plan);
     }
     plan.notes.push(t.vitamin_d.diet_advice.clone());
     safety_with_proposals(rules, facts, finding, &ctx, &mut plan);
@@ -359,15 +483,15 @@ fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &b.chosen, &b.product)?;
     let label_max = adm.bolus_dilution_mg_per_ml[1];
     let peripheral_max = b.peripheral_max_mg_per_ml.map_or(label_max, |site| site.min(label_max));
-    let max_rate = adm.max_bolus_rate_pediatric_mg_per_min;
+    let speed = speed_for(ctx, &b.speed)?;
+    let timing = iv_timing(rules, ctx, w, p, dose, &speed, adm.max_bolus_rate_pediatric_mg_per_min)?;
     let final_ml = dose / peripheral_max;
     let diluent_ml = (final_ml - ml).max(0.0);
-    let minutes = b.min_minutes.max(dose / max_rate);
     let diluent =
         rules.treatment.diluents.iter().find(|x| x.id == b.diluent).map_or(b.diluent.as_str(), |x| x.label.as_str());
     let phrase = dose_phrase(raw, dose, &cap, "mg");
     let text = format!(
-        "{how} = {phrase} = {} mL of {} ({}); dilute with {} mL {diluent} to {} mL ({} mg/mL, the label's bolus dilution is {}-{} mg/mL); give over at least {} min ({}) and no faster than {} mg/min ({}). {} Diluent: {}.",
+        "{how} = {phrase} = {} mL of {} ({}); dilute with {} mL {diluent} to {} mL ({} mg/mL, the label's bolus dilution is {}-{} mg/mL); give over at least {} min. {} {} Diluent: {}.",
         num_trim(ml),
         p.label,
         elemental_text(p, ml),
@@ -376,10 +500,8 @@ fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         num_trim(peripheral_max),
         num_trim(adm.bolus_dilution_mg_per_ml[0]),
         num_trim(adm.bolus_dilution_mg_per_ml[1]),
-        num_trim(minutes.ceil()),
-        b.min_minutes_source,
-        num_trim(max_rate),
-        adm.source,
+        num_trim(timing.minutes),
+        timing.text,
         b.monitoring,
         b.diluent_reason
     );
@@ -389,7 +511,7 @@ fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         product: p.clone(),
         text,
         dose: Some(Qty { value: round_to(dose, 0.1), unit: "mg" }),
-        rate: Some(Qty { value: round_to(dose / minutes, 0.1), unit: "mg/min" }),
+        rate: Some(Qty { value: round_to(dose / timing.minutes, 0.1), unit: "mg/min" }),
         per_day: None,
         days: None,
         max_per_day: None,
@@ -568,16 +690,24 @@ fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     // The loader refuses rules without this rate limit; without one, no chloride is proposed.
     let max_rate_ml_per_min = rate.filter(|r| *r > 0.0)?;
     let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &ch.chosen, &ch.product)?;
-    let minutes = (ml / max_rate_ml_per_min).max(1.0);
+    let speed = speed_for(ctx, &ch.speed)?;
+    // The label's mL/min as salt mg/min of this product.
+    let label_max = max_rate_ml_per_min * p.salt_mg?;
+    let timing = iv_timing(rules, ctx, w, p, dose, &speed, label_max)?;
     let phrase = dose_phrase(raw, dose, &cap, "mg");
+    let ml_per_min = ml / timing.minutes;
     let text = format!(
-        "Central line only. {how} = {phrase} calcium chloride = {} mL of {} ({}); no faster than {} mL/min ({}), so over at least {} min. Calcium chloride irritates veins and causes tissue necrosis and sloughing if it extravasates.",
+        "Central line only. {how} = {phrase} calcium chloride = {} mL of {} ({}); give over at least {} min ({} mL/min = {} mL/h; the label's {} mL/min ({}) is a maximum rate, not a duration). {} {} Calcium chloride irritates veins and causes tissue necrosis and sloughing if it extravasates.",
         num_trim(ml),
         p.label,
         elemental_text(p, ml),
+        num_trim(timing.minutes),
+        num(ml_per_min, 3),
+        num(ml_per_min * 60.0, 1),
         num_trim(max_rate_ml_per_min),
         rate_source,
-        num_trim(minutes.ceil())
+        timing.text,
+        ch.central_line_preparation
     );
     Some(MedProposal {
         key: "calcium-chloride",
@@ -585,7 +715,7 @@ fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         product: p.clone(),
         text,
         dose: Some(Qty { value: round_to(dose, 0.1), unit: "mg" }),
-        rate: Some(Qty { value: max_rate_ml_per_min, unit: "mL/min" }),
+        rate: Some(Qty { value: round_to(dose / timing.minutes, 0.1), unit: "mg/min" }),
         per_day: None,
         days: None,
         max_per_day: None,
@@ -662,8 +792,16 @@ fn measure<'r>(
     Some(if amount < step - 1e-9 { Err(of(step)) } else { Ok(of(amount)) })
 }
 
-fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, issues: &mut Vec<SafetyIssue>) -> Option<MedProposal> {
+fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, binder: bool, issues: &mut Vec<SafetyIssue>) -> Option<MedProposal> {
     let o = &rules.treatment.oral;
+    // As a phosphate binder in kidney disease the timing is with meals, and the total is held
+    // to the KDOQI ceiling too (Guideline 6.5 / 7.4).
+    let advice = if binder { format!("{} {}", o.binder_advice, o.advice) } else { o.advice.clone() };
+    let title = if binder {
+        "Oral elemental calcium, given with meals (also the phosphate binder)"
+    } else {
+        "Oral elemental calcium"
+    };
     let c = chosen(ctx, &o.chosen)?;
     let d = dose_source(rules, &c.dose_source)?;
     let tablets = ctx.within(&crate::rules::model::AgeSpan {
@@ -678,6 +816,15 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, issues: &mut Vec<SafetyIssue
         .find(|l| ctx.within(&l.applies) == Some(true))
         .and_then(|l| rules.safety_sources.get(&l.safety_source))
         .and_then(|s| Some((s.threshold?, s.source.as_str())));
+    let kidney_limit = rules
+        .safety_sources
+        .get("kdoqi_ckd_total_calcium_intake")
+        .filter(|_| binder)
+        .and_then(|s| Some((s.threshold?, s.source.as_str())));
+    let limit = match (limit, kidney_limit) {
+        (Some(a), Some(b)) => Some(if b.0 < a.0 { b } else { a }),
+        (a, b) => a.or(b),
+    };
     let cap = limit.map_or(f64::INFINITY, |l| l.0);
     let day = raw_day.min(cap);
     let doses = f64::from(o.doses_per_day);
@@ -747,13 +894,13 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, issues: &mut Vec<SafetyIssue
         });
         return Some(MedProposal {
             key: "oral-calcium",
-            title: "Oral elemental calcium".into(),
+            title: title.into(),
             product: (*p).clone(),
             text: format!(
                 "{head}. No product in the formulary measures this dose within {}% ({}), so no amount is proposed: prescribe a measurable dose by hand.{not_used_text} {}",
                 num_trim(tolerance),
                 o.rounding_source,
-                o.advice
+                advice
             ),
             dose: None,
             rate: None,
@@ -778,11 +925,11 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, issues: &mut Vec<SafetyIssue
         num_trim(m.mg * doses),
         num_trim(off.abs().round()),
         if off >= 0.0 { "above" } else { "below" },
-        o.advice
+        advice
     );
     Some(MedProposal {
         key: "oral-calcium",
-        title: "Oral elemental calcium".into(),
+        title: title.into(),
         product: m.p.clone(),
         text,
         dose: Some(Qty {
@@ -805,19 +952,19 @@ fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> 
     let adm = &rules.magnesium_sulfate_administration;
     let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &m.chosen, &m.product)?;
     let final_ml = dose / adm.max_iv_concentration_mg_per_ml;
-    let minutes = m.minutes.max(dose / adm.max_iv_rate_mg_per_min);
+    let speed = speed_for(ctx, &m.speed)?;
+    let timing = iv_timing(rules, ctx, w, p, dose, &speed, adm.max_iv_rate_mg_per_min)?;
     let phrase = dose_phrase(raw, dose, &cap, "mg");
     let text = format!(
-        "Give magnesium first: calcium will not hold while magnesium is low. {how} = {phrase} magnesium sulfate = {} mL of {} ({}); dilute to {} mL or more (at most {} mg/mL) and give over {} min ({}; no faster than {} mg/min; {}). {}",
+        "Give magnesium first: calcium will not hold while magnesium is low. {how} = {phrase} magnesium sulfate = {} mL of {} ({}); dilute to {} mL or more (at most {} mg/mL; {}) and give over {} min. {} {}",
         num_trim(ml),
         p.label,
         elemental_text(p, ml),
         num_trim(final_ml),
         num_trim(adm.max_iv_concentration_mg_per_ml),
-        num_trim(minutes.ceil()),
-        m.minutes_source,
-        num_trim(adm.max_iv_rate_mg_per_min),
         adm.source,
+        num_trim(timing.minutes),
+        timing.text,
         m.repeat
     );
     Some(MedProposal {
@@ -826,7 +973,7 @@ fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> 
         product: p.clone(),
         text,
         dose: Some(Qty { value: round_to(dose, 0.1), unit: "mg" }),
-        rate: Some(Qty { value: round_to(dose / minutes, 0.1), unit: "mg/min" }),
+        rate: Some(Qty { value: round_to(dose / timing.minutes, 0.1), unit: "mg/min" }),
         per_day: None,
         days: None,
         max_per_day: None,
@@ -837,47 +984,121 @@ fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> 
     })
 }
 
-fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, plan: &mut TreatmentPlan) {
+/// Vitamin D with the calcium (2016 global consensus on nutritional rickets pairs
+/// cholecalciferol with calcium): a treatment dose when a nutritional cause is likely or
+/// 25-OH vitamin D is low; a maintenance dose while 25-OH vitamin D is not measured, calcium
+/// is proposed and no cause treated with calcitriol is likely; none when 25-OH vitamin D is
+/// not low. Calcitriol for the causes that need it, flagged for specialist dosing, and
+/// deferred for kidney disease while the phosphate is high (KDOQI pediatric 9A.1.a).
+fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, plan: &mut TreatmentPlan) {
     let v = &rules.treatment.vitamin_d;
-    let label_of = |id: &str| w.causes.iter().find(|c| c.id == id).map(|c| c.label);
-    if label_of("vitamin_d_deficiency") == Some(CauseLabel::Likely)
-        && let (Some(c), Some(p)) = (chosen(ctx, &v.chosen), product(rules, &v.cholecalciferol_product))
+    let likely = |id: &str| w.causes.iter().any(|c| c.id == id && c.label == CauseLabel::Likely);
+    let name_of = |id: &str| w.causes.iter().find(|c| c.id == id).map(|c| c.name.clone());
+    let d25 = w.readings.labs.get(&Analyte::VitaminD25Oh);
+    let d25_low = d25.is_some_and(|r| r.outcome == LabOutcome::Low);
+    let calcitriol_ids: Vec<&String> = v.calcitriol_for.iter().filter(|id| likely(id)).collect();
+    let (deferred, specialist_ids): (Vec<&String>, Vec<&String>) =
+        calcitriol_ids.into_iter().partition(|id| phosphate_high && v.calcitriol_deferred_for.contains(id));
+    let calcium_proposed = plan.proposals.iter().any(|p| p.key.starts_with("calcium") || p.key == "oral-calcium");
+    let treat_causes: Vec<String> = v.treat_for.iter().filter(|id| likely(id)).filter_map(|id| name_of(id)).collect();
+    let treat = !treat_causes.is_empty() || d25_low;
+    let maintain = !treat && d25.is_none() && calcium_proposed && specialist_ids.is_empty() && deferred.is_empty();
+    let choices = if treat { &v.chosen } else { &v.maintenance };
+    if (treat || maintain)
+        && let (Some(c), Some(p)) = (chosen(ctx, choices), product(rules, &v.cholecalciferol_product))
         && let (Some(d), Some(iu)) = (dose_source(rules, &c.dose_source), p.iu)
     {
         let per_day = pick(d, c.pick).min(c.max_single.unwrap_or(f64::INFINITY));
         let amount = per_day / iu;
+        let (measure, not_measure) = match p.strength_per.as_str() {
+            "mL" => ("mL", "drops"),
+            "drop" => (if (amount - 1.0).abs() < 1e-9 { "drop" } else { "drops" }, "mL"),
+            other => (other, ""),
+        };
+        let not_text =
+            if not_measure.is_empty() { String::new() } else { format!(" ({} {measure}, not {} {not_measure})", num_trim(amount), num_trim(amount)) };
+        let why = if treat {
+            let mut reasons = treat_causes.clone();
+            if d25_low {
+                reasons.push(d25.map_or_else(String::new, |r| r.text.clone()));
+            }
+            format!("Treatment dose: {}", reasons.join("; "))
+        } else {
+            "25-OH vitamin D is not measured: a maintenance dose with the calcium while it is measured; if it is low, the treatment dose for the age replaces it".to_owned()
+        };
+        let course = if treat {
+            format!(" for {} days ({}), then maintenance", v.treatment_days, v.treatment_source)
+        } else {
+            String::new()
+        };
         plan.proposals.push(MedProposal {
-                    key: "cholecalciferol",
-                    title: "Cholecalciferol (vitamin D3) for nutritional deficiency".into(),
-                    product: p.clone(),
-                    text: format!(
-                        "{} IU once daily = {} {} of {} ({} IU per {}) for {} days ({}), then maintenance. Give with the calcium.",
-                        num_trim(per_day),
-                        num_trim(amount),
-                        p.strength_per,
-                        p.label,
-                        num_trim(iu),
-                        p.strength_per,
-                        v.treatment_days,
-                        v.treatment_source
-                    ),
-                    dose: Some(Qty { value: per_day, unit: "[iU]" }),
-                    rate: None,
-                    per_day: Some(1),
-                    days: Some(v.treatment_days),
-                    max_per_day: None,
-                    route: Route::Oral,
-                    sources: vec![format!("Chosen: {}", range_text(d))],
-                    alternative: false,
-                    specialist: false,
-                });
+            key: "cholecalciferol",
+            title: if treat {
+                "Cholecalciferol (vitamin D3), treatment dose, with the calcium".into()
+            } else {
+                "Cholecalciferol (vitamin D3), maintenance dose, with the calcium".into()
+            },
+            product: p.clone(),
+            text: format!(
+                "{why}. {} IU once daily = {} IU / {} IU per {} = {} {measure} of {}{not_text}{course}. Paired with the calcium: {}",
+                num_trim(per_day),
+                num_trim(per_day),
+                num_trim(iu),
+                p.strength_per,
+                num_trim(amount),
+                p.label,
+                v.pairing_source
+            ),
+            dose: Some(Qty { value: per_day, unit: "[iU]" }),
+            rate: None,
+            per_day: Some(1),
+            days: if treat { Some(v.treatment_days) } else { None },
+            max_per_day: None,
+            route: Route::Oral,
+            sources: vec![format!("Chosen: {}", range_text(d))],
+            alternative: false,
+            specialist: false,
+        });
+        if matches!(p.strength_per.as_str(), "mL" | "drop") {
+            let (confusion_source, _) = fact(rules, "vitamin_d_drop_strength_confusion");
+            let confusion = rules.safety_sources.get("vitamin_d_drop_strength_confusion").map_or("", |f| f.text.as_str());
+            let unverified = if p.confidence == "unverified" {
+                format!(" The strength of the formulary's product is not verified from its own label ({}).", p.source)
+            } else {
+                String::new()
+            };
+            plan.issues.push(SafetyIssue {
+                key: "vitamin-d-liquid",
+                act_code: Some(("DOSE", "Dosage problem")),
+                severity: IssueSeverity::Moderate,
+                title: "Liquid vitamin D: drops and mL are not the same".into(),
+                detail: format!(
+                    "{} IU a day is {} {measure} of {} ({} IU per {}). {confusion} ({confusion_source}).{unverified}",
+                    num_trim(per_day),
+                    num_trim(amount),
+                    p.label,
+                    num_trim(iu),
+                    p.strength_per
+                ),
+                implicated: Vec::new(),
+                mitigation: "Prescribe in IU and in the measure of the named product (mL or drops); check the stocked product's label for IU per mL or per drop, and give the measuring device that comes with it.".into(),
+            });
+        }
     }
-    let specialist: Vec<String> = v
-        .calcitriol_for
-        .iter()
-        .filter(|id| label_of(id) == Some(CauseLabel::Likely))
-        .filter_map(|id| w.causes.iter().find(|c| &c.id == id).map(|c| c.name.clone()))
-        .collect();
+    if !deferred.is_empty() {
+        let names: Vec<String> = deferred.iter().filter_map(|id| name_of(id)).collect();
+        let phosphate: Vec<Source> = w.readings.labs.get(&Analyte::Phosphate).map(|r| r.sources.clone()).unwrap_or_default();
+        plan.issues.push(SafetyIssue {
+            key: "calcitriol-deferred",
+            act_code: None,
+            severity: IssueSeverity::Moderate,
+            title: "Calcitriol deferred until the phosphate is controlled".into(),
+            detail: format!("Likely cause: {}. {}", names.join("; "), v.calcitriol_deferred),
+            implicated: phosphate,
+            mitigation: "Lower the phosphate first (diet, calcium carbonate with meals as a binder); recheck calcium and phosphate, then review calcitriol with pediatric nephrology.".into(),
+        });
+    }
+    let specialist: Vec<String> = specialist_ids.iter().filter_map(|id| name_of(id)).collect();
     if !specialist.is_empty()
         && let Some(p) = product(rules, &v.calcitriol_product)
     {
@@ -897,6 +1118,31 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, plan: &mut TreatmentPla
             specialist: true,
         });
     }
+}
+
+/// A phosphate above the upper limit for the age: the newest result in the result
+/// window, against the lowest upper limit of the lab ranges the age may fall in.
+struct HighPhosphate<'f> {
+    /// mmol/L.
+    value: f64,
+    /// Upper limit, mmol/L.
+    upper: f64,
+    /// Source of the range.
+    range_source: String,
+    /// The result.
+    m: &'f crate::clinical::facts::Measurement,
+}
+
+fn high_phosphate<'f>(rules: &RuleSet, facts: &'f Facts, ctx: &Context) -> Option<HighPhosphate<'f>> {
+    use crate::clinical::bands::at_least;
+    let limit = facts.now - (rules.windows.result_max_age_hours * 3600.0).round() as i64;
+    let m = facts.of(Analyte::Phosphate).into_iter().find(|m| m.when.latest >= limit)?;
+    let range = rules
+        .lab_ranges
+        .iter()
+        .filter(|r| r.analyte == Analyte::Phosphate && at_least(ctx.age_max, r.from) && !at_least(ctx.age_min, r.until))
+        .min_by(|a, b| a.upper.total_cmp(&b.upper))?;
+    (m.value > range.upper).then(|| HighPhosphate { value: m.value, upper: range.upper, range_source: range.source.clone(), m })
 }
 
 fn any_events(facts: &Facts, list: &str) -> Vec<Source> {
@@ -1155,10 +1401,73 @@ fn safety_with_proposals(
         let fresh = |a| facts.of(a).into_iter().find(|m| m.when.latest >= limit);
         let total = fresh(Analyte::CalciumTotal);
         let phosphate = fresh(Analyte::Phosphate);
+        let ca_mass = rules.analyte(Analyte::CalciumTotal).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
+        let p_mass = rules.analyte(Analyte::Phosphate).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
+        // A high phosphate on its own, with or without a total calcium to make the product.
+        if let Some(h) = high_phosphate(rules, facts, ctx) {
+            let (fact_source, _) = fact(rules, "phosphate_high_with_calcium");
+            let fact_text = rules.safety_sources.get("phosphate_high_with_calcium").map_or("", |f| f.text.as_str());
+            plan.issues.push(SafetyIssue {
+                key: "phosphate-high",
+                act_code: None,
+                severity: if iv_calcium { IssueSeverity::High } else { IssueSeverity::Moderate },
+                title: "Phosphate above the upper limit for age".into(),
+                detail: format!(
+                    "Phosphate {} mmol/L ({} mg/dL) is {} times the upper limit {} mmol/L for the age (range: {}). {fact_text} ({fact_source}). {}",
+                    num(h.value, 2),
+                    num(h.value * p_mass / 10.0, 1),
+                    num(h.value / h.upper, 1),
+                    num(h.upper, 2),
+                    h.range_source,
+                    if total.is_some() {
+                        "The calcium x phosphate product is checked from the total calcium in the window."
+                    } else {
+                        "No total calcium is in the result window, so the calcium x phosphate product cannot be computed; this warning does not need it."
+                    }
+                ),
+                implicated: vec![h.m.source.clone()],
+                mitigation: "Lower the phosphate first where possible (stop phosphate intake; in kidney disease a calcium binder with meals and specialist advice); give IV calcium only for symptoms or severe hypocalcemia, at the rate shown, never in a line with phosphate; recheck calcium and phosphate.".into(),
+            });
+        }
         if let (Some(ca), Some(p)) = (total, phosphate) {
-            let ca_mass = rules.analyte(Analyte::CalciumTotal).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
-            let p_mass = rules.analyte(Analyte::Phosphate).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
-            let product = (ca.value * ca_mass / 10.0) * (p.value * p_mass / 10.0);
+            // KDOQI states its calcium targets as corrected total calcium: adjust with an
+            // albumin drawn with the calcium when the rules say so.
+            let pairing = (rules.windows.albumin_pairing_hours * 3600.0).round() as i64;
+            let albumin = facts
+                .of(Analyte::Albumin)
+                .into_iter()
+                .find(|a| (a.when.latest - ca.when.latest).abs() <= pairing)
+                .filter(|_| s.ca_x_p_corrected_calcium);
+            let (ca_mg_dl, ca_text) = match albumin {
+                Some(alb) => {
+                    let d = super::status::adjust(rules, ca, alb);
+                    (
+                        d.value_mg_dl,
+                        format!(
+                            "Albumin-adjusted total calcium {} mg/dL ({} {} {})",
+                            num(d.value_mg_dl, 2),
+                            d.formula,
+                            d.arithmetic,
+                            s.ca_x_p_corrected_source
+                        ),
+                    )
+                }
+                None => (
+                    ca.value * ca_mass / 10.0,
+                    format!(
+                        "Total calcium {} mg/dL{}",
+                        num(ca.value * ca_mass / 10.0, 2),
+                        if s.ca_x_p_corrected_calcium {
+                            " (no albumin drawn with it, so not adjusted)"
+                        } else {
+                            ""
+                        }
+                    ),
+                ),
+            };
+            let product = ca_mg_dl * (p.value * p_mass / 10.0);
+            let mut implicated = vec![ca.source.clone(), p.source.clone()];
+            implicated.extend(albumin.map(|a| a.source.clone()));
             if let Some((limit, caxp_source)) = ca_x_p_limit(rules, ctx)
                 && product > limit
             {
@@ -1168,14 +1477,13 @@ fn safety_with_proposals(
                     severity: IssueSeverity::Moderate,
                     title: "High calcium-phosphate product".into(),
                     detail: format!(
-                        "Total calcium {} mg/dL x phosphate {} mg/dL = {} mg2/dL2, above {} ({}). Giving calcium risks calcium-phosphate precipitation.",
-                        num(ca.value * ca_mass / 10.0, 2),
+                        "{ca_text} x phosphate {} mg/dL = {} mg2/dL2, above {} ({}). Giving calcium risks calcium-phosphate precipitation.",
                         num(p.value * p_mass / 10.0, 2),
                         num(product, 0),
                         num_trim(limit),
                         caxp_source
                     ),
-                    implicated: vec![ca.source.clone(), p.source.clone()],
+                    implicated,
                     mitigation: "Lower the phosphate first where possible and give calcium cautiously, with specialist advice.".into(),
                 });
             }

@@ -355,13 +355,14 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
     product(&t.magnesium.product, "magnesium.product", problems);
     product(&t.vitamin_d.cholecalciferol_product, "vitamin_d.cholecalciferol_product", problems);
     product(&t.vitamin_d.calcitriol_product, "vitamin_d.calcitriol_product", problems);
-    let sets: [(&str, &[crate::rules::treatment_model::Chosen], &[String], &str); 6] = [
+    let sets: [(&str, &[crate::rules::treatment_model::Chosen], &[String], &str); 7] = [
         ("bolus", &t.bolus.chosen, &t.bolus.also_shown, "bolus"),
         ("infusion", &t.infusion.chosen, &t.infusion.also_shown, "infusion"),
         ("chloride", &t.chloride.chosen, &t.chloride.also_shown, "calcium_chloride_bolus"),
         ("oral", &t.oral.chosen, &t.oral.also_shown, "oral_daily"),
         ("magnesium", &t.magnesium.chosen, &t.magnesium.also_shown, "magnesium"),
         ("vitamin_d", &t.vitamin_d.chosen, &[], "cholecalciferol"),
+        ("vitamin_d.maintenance", &t.vitamin_d.maintenance, &[], "cholecalciferol"),
     ];
     for (name, chosen, also, kind) in sets {
         for id in chosen.iter().map(|c| &c.dose_source).chain(also.iter()) {
@@ -432,6 +433,39 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
     for c in &t.vitamin_d.calcitriol_for {
         if !rules.causes.iter().any(|x| &x.id == c) {
             problems.push(format!("  treatment.vitamin_d.calcitriol_for: no cause '{c}'"));
+        }
+    }
+    for c in t.vitamin_d.treat_for.iter().chain(&t.vitamin_d.calcitriol_deferred_for).chain(&t.oral.binder_for) {
+        if !rules.causes.iter().any(|x| &x.id == c) {
+            problems.push(format!("  treatment (vitamin_d.treat_for, vitamin_d.calcitriol_deferred_for, oral.binder_for): no cause '{c}'"));
+        }
+    }
+    // IV speed: every IV proposal has a shortest duration and a fastest rate, both positive,
+    // and every IV calcium salt is held to a positive elemental-calcium ceiling.
+    for (at, speeds) in
+        [("bolus.speed", &t.bolus.speed), ("chloride.speed", &t.chloride.speed), ("magnesium.speed", &t.magnesium.speed)]
+    {
+        if speeds.is_empty() {
+            problems.push(format!("  treatment.{at}: no entries"));
+        }
+        for s in speeds.iter() {
+            if !(s.min_minutes.is_finite() && s.min_minutes > 0.0 && s.max_salt_mg_per_min.is_finite() && s.max_salt_mg_per_min > 0.0) {
+                problems.push(format!(
+                    "  treatment.{at}: min_minutes {} and max_salt_mg_per_min {} must be positive",
+                    s.min_minutes, s.max_salt_mg_per_min
+                ));
+            }
+        }
+    }
+    if t.calcium_rate.is_empty() {
+        problems.push("  treatment.calcium_rate: no entries".to_owned());
+    }
+    for c in &t.calcium_rate {
+        if !(c.max_elemental_mg_per_min > 0.0 && c.max_elemental_mg_per_kg_min > 0.0) {
+            problems.push(format!(
+                "  treatment.calcium_rate: {} mg/min and {} mg/kg/min must be positive",
+                c.max_elemental_mg_per_min, c.max_elemental_mg_per_kg_min
+            ));
         }
     }
 }

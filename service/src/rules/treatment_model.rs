@@ -168,10 +168,8 @@ pub struct BolusPolicy {
     /// The site's own peripheral concentration limit, salt mg/mL (never above the label's).
     #[serde(default)]
     pub peripheral_max_mg_per_ml: Option<f64>,
-    /// Shortest duration, minutes.
-    pub min_minutes: f64,
-    /// Source of the duration.
-    pub min_minutes_source: String,
+    /// Shortest duration and fastest rate, by age.
+    pub speed: Vec<IvSpeed>,
     /// Diluent id the site uses.
     pub diluent: String,
     /// Why that diluent.
@@ -215,6 +213,40 @@ pub struct ChloridePolicy {
     pub chosen: Vec<Chosen>,
     /// Other dose sources shown.
     pub also_shown: Vec<String>,
+    /// Shortest duration and fastest rate, by age.
+    pub speed: Vec<IvSpeed>,
+    /// How it is prepared for the central line (dilution), with its source.
+    pub central_line_preparation: String,
+}
+
+/// The shortest duration and the fastest rate of one IV product for an age span.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct IvSpeed {
+    /// Ages.
+    pub applies: AgeSpan,
+    /// Never given over less than this many minutes.
+    pub min_minutes: f64,
+    /// Source of the shortest duration.
+    pub min_minutes_source: String,
+    /// Never faster than this many mg of the salt per minute.
+    pub max_salt_mg_per_min: f64,
+    /// Source of the fastest rate.
+    pub max_rate_source: String,
+}
+
+/// The ceiling on elemental calcium per minute that every IV calcium salt is held to.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CalciumRateCeiling {
+    /// Ages.
+    pub applies: AgeSpan,
+    /// Elemental calcium, mg per minute.
+    pub max_elemental_mg_per_min: f64,
+    /// Elemental calcium, mg per kg per minute.
+    pub max_elemental_mg_per_kg_min: f64,
+    /// Source.
+    pub source: String,
 }
 
 /// Oral calcium.
@@ -251,6 +283,12 @@ pub struct OralPolicy {
     pub daily_limits: Vec<LimitByAge>,
     /// Timing and advice text.
     pub advice: String,
+    /// Timing when the calcium is given as a phosphate binder (kidney disease, high phosphate).
+    pub binder_advice: String,
+    /// Cause ids for which, with a high phosphate, the oral calcium is given as a phosphate binder.
+    pub binder_for: Vec<String>,
+    /// The plan's step from IV to oral calcium with vitamin D.
+    pub transition: String,
 }
 
 /// IV magnesium sulfate.
@@ -263,10 +301,8 @@ pub struct MagnesiumPolicy {
     pub chosen: Vec<Chosen>,
     /// Other dose sources shown.
     pub also_shown: Vec<String>,
-    /// Duration, minutes (the proposal's infusion time).
-    pub minutes: f64,
-    /// Source.
-    pub minutes_source: String,
+    /// Shortest duration and fastest rate, by age.
+    pub speed: Vec<IvSpeed>,
     /// Repeat text.
     pub repeat: String,
 }
@@ -291,6 +327,16 @@ pub struct VitaminDPolicy {
     pub calcitriol_note: String,
     /// Diet advice.
     pub diet_advice: String,
+    /// Maintenance choices by age (IU/day), proposed with calcium while 25-OH vitamin D is unknown.
+    pub maintenance: Vec<Chosen>,
+    /// Cause ids for which cholecalciferol treatment doses are proposed.
+    pub treat_for: Vec<String>,
+    /// When vitamin D is paired with calcium, and why.
+    pub pairing_source: String,
+    /// Text when calcitriol is deferred until phosphate is controlled.
+    pub calcitriol_deferred: String,
+    /// Cause ids for which calcitriol is deferred while the phosphate is high.
+    pub calcitriol_deferred_for: Vec<String>,
 }
 
 /// Safety settings that are the site's own (the published facts are in `safety_sources`).
@@ -308,6 +354,11 @@ pub struct SafetyPolicy {
     pub digoxin_current: RecencyWindow,
     /// When a recorded sodium bicarbonate counts as current.
     pub bicarbonate_current: RecencyWindow,
+    /// The calcium x phosphate product uses the albumin-adjusted total calcium when an albumin is
+    /// in the window.
+    pub ca_x_p_corrected_calcium: bool,
+    /// Source of that choice.
+    pub ca_x_p_corrected_source: String,
 }
 
 /// A medication counts as current for a safety check when it is running (an
@@ -430,6 +481,8 @@ pub struct TreatmentPolicy {
     pub infusion: InfusionPolicy,
     /// Chloride.
     pub chloride: ChloridePolicy,
+    /// Elemental calcium per minute, every IV salt.
+    pub calcium_rate: Vec<CalciumRateCeiling>,
     /// Oral.
     pub oral: OralPolicy,
     /// Magnesium.
