@@ -792,7 +792,13 @@ fn measure<'r>(
     Some(if amount < step - 1e-9 { Err(of(step)) } else { Ok(of(amount)) })
 }
 
-fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, binder: bool, issues: &mut Vec<SafetyIssue>) -> Option<MedProposal> {
+fn oral(
+    rules: &RuleSet,
+    ctx: &Context,
+    w: &Weight,
+    binder: bool,
+    issues: &mut Vec<SafetyIssue>,
+) -> Option<MedProposal> {
     let o = &rules.treatment.oral;
     // As a phosphate binder in kidney disease the timing is with meals, and the total is held
     // to the KDOQI ceiling too (Guideline 6.5 / 7.4).
@@ -1015,8 +1021,11 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, p
             "drop" => (if (amount - 1.0).abs() < 1e-9 { "drop" } else { "drops" }, "mL"),
             other => (other, ""),
         };
-        let not_text =
-            if not_measure.is_empty() { String::new() } else { format!(" ({} {measure}, not {} {not_measure})", num_trim(amount), num_trim(amount)) };
+        let not_text = if not_measure.is_empty() {
+            String::new()
+        } else {
+            format!(" ({} {measure}, not {} {not_measure})", num_trim(amount), num_trim(amount))
+        };
         let why = if treat {
             let mut reasons = treat_causes.clone();
             if d25_low {
@@ -1061,7 +1070,8 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, p
         });
         if matches!(p.strength_per.as_str(), "mL" | "drop") {
             let (confusion_source, _) = fact(rules, "vitamin_d_drop_strength_confusion");
-            let confusion = rules.safety_sources.get("vitamin_d_drop_strength_confusion").map_or("", |f| f.text.as_str());
+            let confusion =
+                rules.safety_sources.get("vitamin_d_drop_strength_confusion").map_or("", |f| f.text.as_str());
             let unverified = if p.confidence == "unverified" {
                 format!(" The strength of the formulary's product is not verified from its own label ({}).", p.source)
             } else {
@@ -1087,7 +1097,8 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, p
     }
     if !deferred.is_empty() {
         let names: Vec<String> = deferred.iter().filter_map(|id| name_of(id)).collect();
-        let phosphate: Vec<Source> = w.readings.labs.get(&Analyte::Phosphate).map(|r| r.sources.clone()).unwrap_or_default();
+        let phosphate: Vec<Source> =
+            w.readings.labs.get(&Analyte::Phosphate).map(|r| r.sources.clone()).unwrap_or_default();
         plan.issues.push(SafetyIssue {
             key: "calcitriol-deferred",
             act_code: None,
@@ -1142,7 +1153,12 @@ fn high_phosphate<'f>(rules: &RuleSet, facts: &'f Facts, ctx: &Context) -> Optio
         .iter()
         .filter(|r| r.analyte == Analyte::Phosphate && at_least(ctx.age_max, r.from) && !at_least(ctx.age_min, r.until))
         .min_by(|a, b| a.upper.total_cmp(&b.upper))?;
-    (m.value > range.upper).then(|| HighPhosphate { value: m.value, upper: range.upper, range_source: range.source.clone(), m })
+    (m.value > range.upper).then(|| HighPhosphate {
+        value: m.value,
+        upper: range.upper,
+        range_source: range.source.clone(),
+        m,
+    })
 }
 
 fn any_events(facts: &Facts, list: &str) -> Vec<Source> {
@@ -1457,11 +1473,7 @@ fn safety_with_proposals(
                     format!(
                         "Total calcium {} mg/dL{}",
                         num(ca.value * ca_mass / 10.0, 2),
-                        if s.ca_x_p_corrected_calcium {
-                            " (no albumin drawn with it, so not adjusted)"
-                        } else {
-                            ""
-                        }
+                        if s.ca_x_p_corrected_calcium { " (no albumin drawn with it, so not adjusted)" } else { "" }
                     ),
                 ),
             };
@@ -1980,6 +1992,277 @@ mod tests {
         for (at, text) in texts {
             assert!(!text.contains("/work/") && !text.contains("shared/reference"), "{at}: {text}");
         }
+    }
+
+    /// The plan with the work-up run first (causes feed the treatment), gender female.
+    fn full_plan(
+        r: &RuleSet,
+        birth: Option<PartialDate>,
+        m: Vec<Measurement>,
+        events: Vec<CodedEvent>,
+        access: VascularAccess,
+    ) -> TreatmentPlan {
+        let mut facts = facts_of(birth, Gender::Female, m, events);
+        facts.vascular_access = access;
+        let a = status::assess(&facts, r);
+        let finding = a.finding.expect("a finding");
+        let w = crate::clinical::workup::run(&facts, r, &finding);
+        plan(r, &facts, &finding, w.as_ref()).expect("a plan")
+    }
+
+    /// "give over at least N min" read back from a proposal's text.
+    fn minutes_of(p: &MedProposal) -> f64 {
+        p.text
+            .split("give over at least ")
+            .nth(1)
+            .and_then(|t| t.split(" min").next())
+            .and_then(|t| t.parse().ok())
+            .unwrap_or_else(|| panic!("no duration in {}", p.text))
+    }
+
+    fn elemental_per_min(p: &MedProposal) -> f64 {
+        let dose = p.dose.as_ref().map(|d| d.value).expect("a dose");
+        dose * p.product.elemental_mg.expect("elemental") / p.product.salt_mg.expect("salt") / minutes_of(p)
+    }
+
+    #[test]
+    fn neonate_central_line_chloride_is_no_faster_in_calcium_than_the_gluconate_bolus() {
+        // A 10-day-old of 3.2 kg, ionized 0.70, central line.
+        // Gluconate bolus (US label, under 1 month, low end 100 mg/kg): 3.2 x 100 = 320 mg
+        // = 3.2 mL x 9.3 mg/mL = 29.76 mg elemental Ca. Ceiling: the lower of 9.3 mg/min and
+        // 0.93 mg/kg/min x 3.2 kg = 2.976 mg/min -> 29.76 / 2.976 = 10 min; the salt at
+        // 100 mg/min needs 3.2 min; the shortest is 10 min -> 10 min = 2.976 mg Ca/min.
+        // Chloride (AHA 20 mg/kg): 64 mg = 0.64 mL x 27.3 mg/mL = 17.472 mg elemental Ca.
+        // Before: 0.64 mL at the label's 1 mL/min "over at least 1 min" = 17.47 mg Ca/min,
+        // 5.9 times the gluconate bolus. Now: 17.472 / 2.976 = 5.87 min, the salt 0.64 min,
+        // the shortest 10 min -> 10 min = 1.75 mg Ca/min, slower than the gluconate.
+        let r = rules();
+        let mut facts = facts_of(born_days_ago(10), Gender::Female, vec![ionized(0.70, 1, "ica"), weight(3.2)], vec![]);
+        facts.vascular_access = VascularAccess::Central;
+        let a = status::assess(&facts, &r);
+        let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+        let b = find(&p, "calcium-bolus");
+        let c = find(&p, "calcium-chloride");
+        assert_eq!(b.dose.as_ref().map(|d| d.value), Some(320.0));
+        assert_eq!(c.dose.as_ref().map(|d| d.value), Some(64.0));
+        assert_eq!(minutes_of(b), 10.0, "{}", b.text);
+        assert_eq!(minutes_of(c), 10.0, "{}", c.text);
+        assert!(b.text.contains("29.76 mg elemental calcium / 10 min = 2.98 mg elemental calcium/min"), "{}", b.text);
+        assert!(c.text.contains("17.47 mg elemental calcium / 10 min = 1.75 mg elemental calcium/min"), "{}", c.text);
+        assert!(c.text.contains("0.93 mg/kg/min x 3.2 kg = 2.98 mg/min"), "{}", c.text);
+        assert!(c.text.contains("is a maximum rate, not a duration"), "{}", c.text);
+        assert!(c.text.contains("Preparation for the central line"), "{}", c.text);
+        assert!(elemental_per_min(c) <= elemental_per_min(b) + 1e-9);
+        // 6.4 mg/min of chloride salt (64 mg / 10 min).
+        assert_eq!(c.rate, Some(Qty { value: 6.4, unit: "mg/min" }));
+    }
+
+    #[test]
+    fn child_chloride_is_held_to_9_3_mg_calcium_per_min() {
+        // 22 kg: 440 mg chloride = 4.4 mL x 27.3 = 120.12 mg Ca. Ceiling: the lower of 9.3 and
+        // 0.93 x 22 = 20.46 -> 9.3 mg/min: 120.12 / 9.3 = 12.92 -> 13 min (salt 4.4 min,
+        // shortest 10 min). 120.12 / 13 = 9.24 mg Ca/min.
+        let r = rules();
+        let mut facts = facts_of(seven(), Gender::Female, vec![ionized(0.85, 1, "ica"), weight(22.0)], vec![]);
+        facts.vascular_access = VascularAccess::Central;
+        let a = status::assess(&facts, &r);
+        let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+        let c = find(&p, "calcium-chloride");
+        assert_eq!(minutes_of(c), 13.0, "{}", c.text);
+        assert!(c.text.contains("120.12 mg elemental calcium / 13 min = 9.24 mg elemental calcium/min"), "{}", c.text);
+    }
+
+    #[test]
+    fn no_iv_calcium_salt_passes_the_elemental_ceiling_at_any_weight() {
+        // Neonates and 7-year-olds over plausible weights, central line (both salts proposed):
+        // elemental Ca per minute never above the lower of 9.3 mg/min and 0.93 mg/kg/min,
+        // and never shorter than the 10-min shortest duration.
+        let r = rules();
+        let ceiling = &r.treatment.calcium_rate[0];
+        for (birth, weights) in
+            [(born_days_ago(10), vec![1.0, 2.0, 2.5, 3.2, 4.0, 4.5]), (seven(), vec![15.0, 22.0, 30.0, 45.0])]
+        {
+            for kg in weights {
+                let mut facts = facts_of(birth, Gender::Female, vec![ionized(0.70, 1, "ica"), weight(kg)], vec![]);
+                facts.vascular_access = VascularAccess::Central;
+                let a = status::assess(&facts, &r);
+                let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+                if p.issues.iter().any(|i| i.key == "weight") {
+                    continue; // implausible for the age: no doses at all
+                }
+                for key in ["calcium-bolus", "calcium-chloride"] {
+                    let x = find(&p, key);
+                    let limit = ceiling.max_elemental_mg_per_min.min(ceiling.max_elemental_mg_per_kg_min * kg);
+                    assert!(elemental_per_min(x) <= limit + 1e-9, "{key} at {kg} kg: {}", x.text);
+                    assert!(minutes_of(x) >= 10.0, "{key} at {kg} kg");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn the_elemental_ceiling_is_no_faster_than_the_gluconate_label_and_bnfc() {
+        // 9.3 mg/min = the label's 100 mg/min of gluconate x 9.3 mg Ca per 100 mg; 0.93 mg/kg/min
+        // = BNFC 0.5 mL/kg in 5 min = 10 mg/kg/min of gluconate x 0.093.
+        let r = rules();
+        let g = r.products.iter().find(|p| p.id == r.treatment.bolus.product).unwrap();
+        let fraction = g.elemental_mg.unwrap() / g.salt_mg.unwrap();
+        for c in &r.treatment.calcium_rate {
+            assert!(
+                c.max_elemental_mg_per_min
+                    <= r.calcium_gluconate_administration.max_bolus_rate_pediatric_mg_per_min * fraction + 1e-9
+            );
+            assert!(close(c.max_elemental_mg_per_kg_min, 10.0 * fraction, 1e-9), "{}", c.max_elemental_mg_per_kg_min);
+        }
+        for s in r.treatment.bolus.speed.iter().chain(&r.treatment.chloride.speed) {
+            assert!(s.max_salt_mg_per_min <= r.calcium_gluconate_administration.max_bolus_rate_pediatric_mg_per_min);
+        }
+        for s in &r.treatment.magnesium.speed {
+            assert!(s.max_salt_mg_per_min <= r.magnesium_sulfate_administration.max_iv_rate_mg_per_min);
+        }
+    }
+
+    #[test]
+    fn magnesium_takes_its_shortest_duration_and_shows_elemental_magnesium_per_min() {
+        // 7 years, 22 kg, magnesium low: AHA 50 mg/kg (high end) = 1100 mg = 2.2 mL of 50%
+        // = 2.2 x 49.3 = 108.46 mg Mg; salt at 150 mg/min = 7.33 min; shortest 60 min
+        // -> 60 min: 108.46 / 60 = 1.81 mg Mg/min, 18.33 mg/min of the salt.
+        let r = rules();
+        let m = vec![ionized(0.85, 1, "ica"), weight(22.0), lab(Analyte::Magnesium, 0.40, "mmol/L", "mg")];
+        let p = full_plan(&r, seven(), m, vec![], VascularAccess::Peripheral);
+        let x = find(&p, "magnesium");
+        assert!(x.text.contains("give over 60 min"), "{}", x.text);
+        assert!(
+            x.text.contains("108.46 mg elemental magnesium / 60 min = 1.81 mg elemental magnesium/min"),
+            "{}",
+            x.text
+        );
+        assert_eq!(x.rate, Some(Qty { value: 18.3, unit: "mg/min" }));
+    }
+
+    #[test]
+    fn a_high_phosphate_warns_with_iv_calcium_when_no_total_calcium_is_measured() {
+        // 7 years (phosphate range 0.90-1.80 mmol/L, lab-ranges.toml): 3.6 mmol/L is 2.0 x the
+        // upper limit; ionized only. IV bolus proposed -> "phosphate-high", High. 1.5 -> none.
+        let r = rules();
+        for (value, fires) in [(3.6, true), (1.5, false)] {
+            let m = vec![ionized(0.85, 1, "ica"), weight(22.0), lab(Analyte::Phosphate, value, "mmol/L", "p")];
+            let facts = facts_of(seven(), Gender::Female, m, vec![]);
+            let a = status::assess(&facts, &r);
+            let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+            assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"));
+            let issue = p.issues.iter().find(|i| i.key == "phosphate-high");
+            assert_eq!(issue.is_some(), fires, "{value}");
+            if let Some(i) = issue {
+                assert_eq!(i.severity, IssueSeverity::High);
+                assert!(i.detail.contains("is 2.0 times the upper limit 1.80 mmol/L"), "{}", i.detail);
+                assert!(i.detail.contains("No total calcium is in the result window"), "{}", i.detail);
+                assert!(!p.issues.iter().any(|i| i.key == "caxp"));
+            }
+        }
+    }
+
+    #[test]
+    fn caxp_uses_the_albumin_adjusted_total_calcium() {
+        // 13 years, limit 55. Total 8.0 mg/dL with albumin 2.0 g/dL: adjusted 8.0 + 0.8 x (4.0 - 2.0)
+        // = 9.6 mg/dL; x phosphate 5.5 mg/dL = 52.8 < 55 unadjusted would be 8.0 x 5.5 = 44; at
+        // phosphate 6.0: adjusted 57.6 > 55 fires, unadjusted 48 would not.
+        let r = rules();
+        for (p_mg, fires) in [(5.5, false), (6.0, true)] {
+            let m = vec![
+                ionized(0.85, 1, "ica"),
+                total_mg(8.0, 1, "tca"),
+                albumin_g_dl(2.0, 1, "alb"),
+                phosphate_mg(p_mg, 1, "p"),
+                weight(45.0),
+            ];
+            let facts = facts_of(born_days_ago(13 * 365 + 100), Gender::Female, m, vec![]);
+            let a = status::assess(&facts, &r);
+            let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+            let issue = p.issues.iter().find(|i| i.key == "caxp");
+            assert_eq!(issue.is_some(), fires, "phosphate {p_mg}");
+            if let Some(i) = issue {
+                assert!(i.detail.starts_with("Albumin-adjusted total calcium 9.60 mg/dL"), "{}", i.detail);
+                assert!(i.detail.contains("= 58 mg2/dL2, above 55"), "{}", i.detail);
+            }
+        }
+    }
+
+    /// A 7-year-old with chronic kidney disease, high phosphate and a mildly low ionized calcium.
+    fn ckd_plan(phosphate: f64) -> TreatmentPlan {
+        let r = rules();
+        let m = vec![
+            ionized(1.05, 1, "ica"),
+            weight(22.0),
+            lab(Analyte::Phosphate, phosphate, "mmol/L", "p"),
+            lab(Analyte::Creatinine, 250.0, "umol/L", "cr"),
+            lab(Analyte::PthIntact, 30.0, "pmol/L", "pth"),
+        ];
+        let events = vec![event(EventKind::Condition, "chronic_kidney_disease", 24, "ckd")];
+        full_plan(&r, seven(), m, events, VascularAccess::Unknown)
+    }
+
+    #[test]
+    fn kidney_disease_with_high_phosphate_gives_the_binder_with_meals_and_defers_calcitriol() {
+        // Phosphate 2.9 mmol/L > 1.80 (1.6 x). KDOQI pediatric 6.2 (calcium binder), 9A.1.a
+        // (active vitamin D only with phosphorus below the age limit).
+        let p = ckd_plan(2.9);
+        let o = find(&p, "oral-calcium");
+        assert!(o.title.contains("phosphate binder"), "{}", o.title);
+        assert!(o.text.contains("WITH a meal or feed"), "{}", o.text);
+        assert!(p.issues.iter().any(|i| i.key == "calcitriol-deferred"));
+        assert!(p.proposals.iter().all(|x| x.key != "calcitriol"));
+        assert!(p.issues.iter().any(|i| i.key == "phosphate-high" && i.severity == IssueSeverity::Moderate));
+        // Phosphate back in range: calcitriol for specialist dosing, no binder wording.
+        let p = ckd_plan(1.5);
+        assert!(p.proposals.iter().any(|x| x.key == "calcitriol"));
+        assert!(!find(&p, "oral-calcium").title.contains("binder"));
+        assert!(p.issues.iter().all(|i| i.key != "calcitriol-deferred"));
+    }
+
+    #[test]
+    fn oral_calcium_timing_is_with_meals_and_vitamin_d_is_paired() {
+        // 7 years, 22 kg, asymptomatic (oral). 25-OH vitamin D not measured: maintenance
+        // 600 IU/day = 600 / 400 IU per mL = 1.5 mL, with the drop/mL warning.
+        let r = rules();
+        let p = full_plan(&r, seven(), vec![ionized(1.05, 1, "ica"), weight(22.0)], vec![], VascularAccess::Unknown);
+        let o = find(&p, "oral-calcium");
+        assert!(o.text.contains("Give with feeds or meals"), "{}", o.text);
+        assert!(!o.text.contains("30 minutes"), "{}", o.text);
+        let v = find(&p, "cholecalciferol");
+        assert!(v.title.contains("maintenance"), "{}", v.title);
+        assert!(v.text.contains("600 IU once daily = 600 IU / 400 IU per mL = 1.5 mL of"), "{}", v.text);
+        assert!(v.text.contains("(1.5 mL, not 1.5 drops)"), "{}", v.text);
+        assert!(p.issues.iter().any(|i| i.key == "vitamin-d-liquid"));
+        // 25-OH vitamin D low (20 nmol/L): the treatment dose, SPEG 6 months-12 years low end
+        // 3000 IU = 7.5 mL, for 90 days.
+        let m = vec![ionized(1.05, 1, "ica"), weight(22.0), lab(Analyte::VitaminD25Oh, 20.0, "nmol/L", "d")];
+        let p = full_plan(&r, seven(), m, vec![], VascularAccess::Unknown);
+        let v = find(&p, "cholecalciferol");
+        assert_eq!(v.dose, Some(Qty { value: 3000.0, unit: "[iU]" }));
+        assert_eq!(v.days, Some(90));
+        assert!(v.text.contains("= 7.5 mL of"), "{}", v.text);
+        // 25-OH vitamin D normal (80 nmol/L): no vitamin D proposed, no liquid warning.
+        let m = vec![ionized(1.05, 1, "ica"), weight(22.0), lab(Analyte::VitaminD25Oh, 80.0, "nmol/L", "d")];
+        let p = full_plan(&r, seven(), m, vec![], VascularAccess::Unknown);
+        assert!(p.proposals.iter().all(|x| x.key != "cholecalciferol"));
+        assert!(p.issues.iter().all(|i| i.key != "vitamin-d-liquid"));
+    }
+
+    #[test]
+    fn iv_calcium_states_the_step_to_oral_calcium_with_vitamin_d() {
+        let r = rules();
+        let p = full_plan(&r, seven(), vec![ionized(0.85, 1, "ica"), weight(22.0)], vec![], VascularAccess::Peripheral);
+        assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"));
+        assert!(
+            p.notes.iter().any(|n| n.starts_with("After the IV calcium") && n.contains("oral calcium with vitamin D")),
+            "{:?}",
+            p.notes
+        );
+        assert!(
+            p.proposals.iter().any(|x| x.key == "cholecalciferol"),
+            "25-OH vitamin D unknown: maintenance with the calcium"
+        );
     }
 
     mod properties {

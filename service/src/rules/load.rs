@@ -437,19 +437,27 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
     }
     for c in t.vitamin_d.treat_for.iter().chain(&t.vitamin_d.calcitriol_deferred_for).chain(&t.oral.binder_for) {
         if !rules.causes.iter().any(|x| &x.id == c) {
-            problems.push(format!("  treatment (vitamin_d.treat_for, vitamin_d.calcitriol_deferred_for, oral.binder_for): no cause '{c}'"));
+            problems.push(format!(
+                "  treatment (vitamin_d.treat_for, vitamin_d.calcitriol_deferred_for, oral.binder_for): no cause '{c}'"
+            ));
         }
     }
     // IV speed: every IV proposal has a shortest duration and a fastest rate, both positive,
     // and every IV calcium salt is held to a positive elemental-calcium ceiling.
-    for (at, speeds) in
-        [("bolus.speed", &t.bolus.speed), ("chloride.speed", &t.chloride.speed), ("magnesium.speed", &t.magnesium.speed)]
-    {
+    for (at, speeds) in [
+        ("bolus.speed", &t.bolus.speed),
+        ("chloride.speed", &t.chloride.speed),
+        ("magnesium.speed", &t.magnesium.speed),
+    ] {
         if speeds.is_empty() {
             problems.push(format!("  treatment.{at}: no entries"));
         }
         for s in speeds.iter() {
-            if !(s.min_minutes.is_finite() && s.min_minutes > 0.0 && s.max_salt_mg_per_min.is_finite() && s.max_salt_mg_per_min > 0.0) {
+            if !(s.min_minutes.is_finite()
+                && s.min_minutes > 0.0
+                && s.max_salt_mg_per_min.is_finite()
+                && s.max_salt_mg_per_min > 0.0)
+            {
                 problems.push(format!(
                     "  treatment.{at}: min_minutes {} and max_salt_mg_per_min {} must be positive",
                     s.min_minutes, s.max_salt_mg_per_min
