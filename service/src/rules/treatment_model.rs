@@ -528,3 +528,76 @@ pub struct GrowthPolicy {
     /// Source.
     pub implausible_source: String,
 }
+
+#[cfg(test)]
+mod tests {
+    /// One step of a path in the figures table: `name`, `name[id]` or `name[n]`.
+    fn step<'v>(v: &'v toml::Value, part: &str) -> Option<&'v toml::Value> {
+        let (name, key) = match part.split_once('[') {
+            Some((n, k)) => (n, Some(k.trim_end_matches(']'))),
+            None => (part, None),
+        };
+        let here = v.get(name)?;
+        match key {
+            None => Some(here),
+            Some(k) => {
+                let list = here.as_array()?;
+                match k.parse::<usize>() {
+                    Ok(n) => list.get(n),
+                    Err(_) => list.iter().find(|e| e.get("id").and_then(toml::Value::as_str) == Some(k)),
+                }
+            }
+        }
+    }
+
+    fn number(v: &toml::Value) -> Option<f64> {
+        v.as_float().or_else(|| v.as_integer().map(|i| i as f64))
+    }
+
+    #[test]
+    fn treatment_sources_figures_match_the_rule_data() {
+        // TREATMENT-SOURCES.md states figures in prose; its "Figures the rule data must match"
+        // table is the machine-readable copy, and every row must equal the rule file.
+        let md = include_str!("../../rules/TREATMENT-SOURCES.md");
+        let formulary: toml::Value = toml::from_str(include_str!("../../rules/formulary.toml")).expect("formulary");
+        let treatment: toml::Value = toml::from_str(include_str!("../../rules/treatment.toml")).expect("treatment");
+        let table = md
+            .split("<!-- figures:start -->")
+            .nth(1)
+            .and_then(|t| t.split("<!-- figures:end -->").next())
+            .expect("the figures table");
+        let mut checked = 0;
+        for line in table.lines().filter(|l| l.starts_with('|')).skip(2) {
+            let cells: Vec<&str> = line.trim_matches('|').split('|').map(str::trim).collect();
+            let [file, path, value] = cells[..] else { panic!("a row of three cells: {line}") };
+            let doc = match file {
+                "formulary" => &formulary,
+                "treatment" => &treatment,
+                other => panic!("unknown file {other} in {line}"),
+            };
+            let found = path.split('.').try_fold(doc, step).and_then(number);
+            let stated: f64 = value.parse().unwrap_or_else(|_| panic!("not a number: {line}"));
+            assert!(
+                found.is_some_and(|f| (f - stated).abs() <= 1e-9 * stated.abs().max(1.0)),
+                "TREATMENT-SOURCES.md says {path} = {stated}, the {file} rule data has {found:?}"
+            );
+            checked += 1;
+        }
+        assert!(checked >= 50, "only {checked} figures checked");
+    }
+
+    #[test]
+    fn treatment_sources_cite_no_unnamed_origin() {
+        // Figures cite a publication or are a project decision; no "memory", "brief" or slides.
+        for text in [
+            include_str!("../../rules/TREATMENT-SOURCES.md"),
+            include_str!("../../rules/treatment.toml"),
+            include_str!("../../rules/formulary.toml"),
+        ] {
+            let lower = text.to_lowercase();
+            for word in ["memory", "the brief", "project brief", "slides", "slideshare"] {
+                assert!(!lower.contains(word), "'{word}' found");
+            }
+        }
+    }
+}
