@@ -367,6 +367,30 @@ fn iv_timing(
     Some(IvTiming { minutes, text })
 }
 
+/// The infusion's elemental calcium per minute against the common ceiling, as text (a
+/// continuous infusion is far below it at the published rates; a site rate above it is said).
+fn infusion_speed_text(rules: &RuleSet, ctx: &Context, w: &Weight, p: &Product, salt_mg_h: f64) -> String {
+    let (Some(e), Some(salt), Some(c)) = (p.elemental_mg, p.salt_mg.filter(|v| *v > 0.0), calcium_ceiling(rules, ctx))
+    else {
+        return String::new();
+    };
+    let per_min = salt_mg_h * e / salt / 60.0;
+    let ceiling = c.max_elemental_mg_per_min.min(c.max_elemental_mg_per_kg_min * w.kg);
+    format!(
+        " Elemental calcium: {} mg/h x {}/{} / 60 = {} mg/min ({} mg/kg/min){}",
+        num_trim(salt_mg_h),
+        num_trim(e),
+        num_trim(salt),
+        num(per_min, 3),
+        num(per_min / w.kg, 4),
+        if per_min <= ceiling {
+            format!(", within the ceiling of {} mg/min for every IV calcium salt.", num_trim(ceiling))
+        } else {
+            format!(", ABOVE the ceiling of {} mg/min for every IV calcium salt: lower the rate.", num_trim(ceiling))
+        }
+    )
+}
+
 /// Build the plan. `None` when no treatment is due (calcium not low).
 pub fn plan(
     rules: &RuleSet,
@@ -630,6 +654,7 @@ fn infusion(
         num_trim(mg_h_given * 24.0),
         inf.monitoring
     );
+    text.push_str(&infusion_speed_text(rules, ctx, w, p, mg_h_given));
     if !already.counted.is_empty() || !already.uncounted.is_empty() {
         text.push_str(&format!(
             " Already given in the last 24 h: {} mg recorded in {} administration(s){}{}.",
@@ -1604,6 +1629,10 @@ mod tests {
         // 22.1 x 8 = 176.8 mg/h / 10 = 17.68 -> 17.7 mL/h.
         assert_eq!(inf.rate, Some(Qty { value: 17.7, unit: "mL/h" }));
         assert!(inf.text.contains("17.68 mL/h, rounded"), "{}", inf.text);
+        // 17.7 mL/h x 10 mg/mL = 177 mg/h x 9.3/100 / 60 = 0.274 mg elemental Ca/min, within the
+        // ceiling 9.3 mg/min (0.93 x 22.1 = 20.55 is higher).
+        assert!(inf.text.contains("Elemental calcium: 177 mg/h x 9.3/100 / 60 = 0.274 mg/min"), "{}", inf.text);
+        assert!(inf.text.contains("within the ceiling of 9.3 mg/min"), "{}", inf.text);
     }
 
     #[test]
