@@ -468,6 +468,19 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
     if t.calcium_rate.is_empty() {
         problems.push("  treatment.calcium_rate: no entries".to_owned());
     }
+    // Every age from birth to 19 years has a speed and a ceiling: without one the IV proposal
+    // could not be timed and would be left out.
+    let spans: [(&str, Vec<&crate::rules::model::AgeSpan>); 4] = [
+        ("bolus.speed", t.bolus.speed.iter().map(|x| &x.applies).collect()),
+        ("chloride.speed", t.chloride.speed.iter().map(|x| &x.applies).collect()),
+        ("magnesium.speed", t.magnesium.speed.iter().map(|x| &x.applies).collect()),
+        ("calcium_rate", t.calcium_rate.iter().map(|x| &x.applies).collect()),
+    ];
+    for (at, list) in spans {
+        if let Some(gap) = first_uncovered_age(&list) {
+            problems.push(format!("  treatment.{at}: no entry covers age {gap}"));
+        }
+    }
     for c in &t.calcium_rate {
         if !(c.max_elemental_mg_per_min > 0.0 && c.max_elemental_mg_per_kg_min > 0.0) {
             problems.push(format!(
@@ -480,6 +493,24 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
 
 /// Every analyte with ranges has exactly one range for each sex on every day
 /// from birth to 19 years (checked day by day for a child born 2000-01-01).
+/// The first age (birth to 19 years, day by day) that no span covers, described.
+fn first_uncovered_age(spans: &[&crate::rules::model::AgeSpan]) -> Option<String> {
+    use crate::clinical::bands::at_least;
+    use crate::clinical::time::{Age, CivilDate};
+    let birth = CivilDate::new(2000, 1, 1)?;
+    for day in 0..(19 * 365 + 4) {
+        let on = CivilDate::from_days_since_epoch(birth.days_since_epoch() + day);
+        let Some(age) = Age::between(birth, on) else { continue };
+        if age.years >= 19 {
+            break;
+        }
+        if !spans.iter().any(|s| at_least(age, s.from) && !at_least(age, s.until)) {
+            return Some(age.describe());
+        }
+    }
+    None
+}
+
 fn tiling(rules: &RuleSet, problems: &mut Vec<String>) {
     use crate::clinical::time::{Age, CivilDate};
     use crate::rules::model::{AgeBound, AgeUnit, SexRestriction};
@@ -530,6 +561,23 @@ fn hex(bytes: &[u8]) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn an_iv_speed_list_must_cover_every_age() {
+        use crate::rules::model::{AgeBound, AgeSpan, AgeUnit};
+        let span = |from: (i32, AgeUnit), until: (i32, AgeUnit)| AgeSpan {
+            from: AgeBound { value: from.0 as _, unit: from.1 },
+            until: AgeBound { value: until.0 as _, unit: until.1 },
+        };
+        let neonate = span((0, AgeUnit::Days), (29, AgeUnit::Days));
+        let rest = span((29, AgeUnit::Days), (19, AgeUnit::Years));
+        assert_eq!(first_uncovered_age(&[&neonate, &rest]), None);
+        assert!(first_uncovered_age(&[&neonate]).is_some(), "a neonate-only list leaves children without a speed");
+        assert!(first_uncovered_age(&[&rest]).is_some(), "neonates not covered");
+        // The shipped rules cover every age (they load).
+        let t = &load(None).unwrap().rules.treatment;
+        assert_eq!(first_uncovered_age(&t.chloride.speed.iter().map(|x| &x.applies).collect::<Vec<_>>()), None);
+    }
 
     #[test]
     fn embedded_defaults_load() {
