@@ -117,6 +117,24 @@ const SAFETY_CHECKS: &[(&str, &str, &str, Applies)] = &[
         "Would what was given in 24 h plus the proposed infusion pass the daily maximum?",
         Applies::WithIvCalcium,
     ),
+    (
+        "daily-maximum-incomplete",
+        "treatment.infusion, formulary products (salt of each administration)",
+        "Was IV calcium given in 24 h whose salt is not known, so the daily-maximum count may be low?",
+        Applies::WithIvCalcium,
+    ),
+    (
+        "unidentified-medication",
+        "treatment.safety.unidentified_medication_current",
+        "Is a medication record near the proposal that could not be identified by code or name?",
+        Applies::WithCalcium,
+    ),
+    (
+        "symptoms-unknown",
+        "windows.symptom_window_hours",
+        "With oral calcium only, is a Condition near the result that could be an unrecognised symptom?",
+        Applies::WithOralCalcium,
+    ),
     ("digoxin", "safety_sources.digoxin", "Is digoxin recorded with IV calcium proposed?", Applies::WithIvCalcium),
     (
         "precipitation",

@@ -319,6 +319,9 @@ pub fn plan(
     }
     plan.notes.push(t.vitamin_d.diet_advice.clone());
     safety_with_proposals(rules, facts, finding, &ctx, &mut plan);
+    unidentified_medications(rules, facts, &mut plan);
+    symptoms_unknown(rules, facts, finding, &mut plan);
+    mark_name_matches(facts, &mut plan.issues);
     plan.weight = weight.ok();
     Some(plan)
 }
@@ -414,10 +417,13 @@ struct Given {
     uncounted: Vec<(Source, &'static str)>,
     /// Conversions made, for the text.
     conversions: Vec<String>,
+    /// Administrations whose salt could not be found (so the count may be low).
+    unknown_salt: Vec<Source>,
 }
 
 fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given {
-    let mut g = Given { mg: 0.0, counted: Vec::new(), uncounted: Vec::new(), conversions: Vec::new() };
+    let mut g =
+        Given { mg: 0.0, counted: Vec::new(), uncounted: Vec::new(), conversions: Vec::new(), unknown_salt: Vec::new() };
     let fraction = |p: &Product| p.elemental_mg.zip(p.salt_mg).filter(|(_, s)| *s > 0.0).map(|(e, s)| e / s);
     let Some(reference_fraction) = fraction(reference) else { return g };
     for e in events_in(facts, "calcium_preparations", EventKind::Medication) {
@@ -432,8 +438,17 @@ fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given 
             g.uncounted.push((e.source.clone(), "no dose in mg"));
             continue;
         };
-        let product =
-            rules.products.iter().find(|p| p.codes.iter().any(|c| c.system == e.code.system && c.code == e.code.code));
+        // The product whose code the record carries; else, for a code or name that
+        // gives only the ingredient, that ingredient's product for the reference
+        // route (an administration counted here is taken as intravenous).
+        let product = rules
+            .products
+            .iter()
+            .find(|p| p.codes.iter().any(|c| c.system == e.code.system && c.code == e.code.code))
+            .or_else(|| {
+                let ing = e.ingredient.as_deref()?;
+                rules.products.iter().find(|p| p.ingredient == ing && p.route == reference.route)
+            });
         match product {
             Some(p) if p.route != reference.route => {
                 g.uncounted.push((e.source.clone(), "not intravenous, not part of the IV maximum"));
@@ -458,7 +473,10 @@ fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given 
                 }
                 None => g.uncounted.push((e.source.clone(), "its product has no elemental calcium content")),
             },
-            None => g.uncounted.push((e.source.clone(), "its salt is not in the formulary")),
+            None => {
+                g.uncounted.push((e.source.clone(), "its salt is not known (not in the formulary)"));
+                g.unknown_salt.push(e.source.clone());
+            }
         }
     }
     g
@@ -545,6 +563,7 @@ fn infusion(
             mitigation: "Lower the infusion rate or shorten it, check ionized calcium, and review with the treating clinician.".into(),
         });
     }
+    unknown_salt_issue(&already.unknown_salt, issues);
     Some(MedProposal {
         key: "calcium-infusion",
         title: "Continuous IV calcium gluconate (after the bolus)".into(),
@@ -560,6 +579,26 @@ fn infusion(
         alternative: false,
         specialist: false,
     })
+}
+
+/// IV calcium given in the last 24 h whose salt is unknown: the daily-maximum
+/// count may be too low, so the check says so where the clinician looks.
+fn unknown_salt_issue(unknown: &[Source], issues: &mut Vec<SafetyIssue>) {
+    if unknown.is_empty() {
+        return;
+    }
+    issues.push(SafetyIssue {
+        key: "daily-maximum-incomplete",
+        act_code: Some(("DOSEH", "High Dose Alert")),
+        severity: IssueSeverity::Moderate,
+        title: "Daily maximum of IV calcium may be incomplete".into(),
+        detail: format!(
+            "{} calcium administration(s) in the last 24 h could not be counted toward the daily maximum: the salt (gluconate or chloride) is not known from the record, and chloride carries about three times the calcium of gluconate per mg.",
+            unknown.len()
+        ),
+        implicated: unknown.to_vec(),
+        mitigation: "Check what was given (salt, amount) on the administration record and add it to the count before starting the infusion.".into(),
+    });
 }
 
 fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
@@ -931,6 +970,95 @@ fn window_text(w: &RecencyWindow) -> String {
         format!("{} h", num_trim(w.hours))
     };
     format!("counted when running, active or recorded in the last {hours} ({})", w.source)
+}
+
+/// Say on each issue which of its medication records were identified by name
+/// (their text or display) rather than by a listed code.
+fn mark_name_matches(facts: &Facts, issues: &mut [SafetyIssue]) {
+    for i in issues.iter_mut() {
+        let named: Vec<String> = facts
+            .events
+            .iter()
+            .filter(|e| e.kind == EventKind::Medication && i.implicated.contains(&e.source))
+            .filter_map(|e| e.by_name.as_ref().map(|t| format!("{} identified by name '{t}'", e.source.label())))
+            .collect();
+        if !named.is_empty() {
+            i.detail.push_str(&format!(" Not by a listed code: {}.", named.join("; ")));
+        }
+    }
+}
+
+/// A medication record near the proposal that could not be identified: the
+/// interaction and line checks may be incomplete, said on the proposals.
+/// "Near": running or active, or recorded within `unidentified_medication_current`.
+fn unidentified_medications(rules: &RuleSet, facts: &Facts, plan: &mut TreatmentPlan) {
+    if plan.proposals.is_empty() {
+        return;
+    }
+    let w = &rules.treatment.safety.unidentified_medication_current;
+    let window_s = (w.hours * 3600.0).round() as i64;
+    let near: Vec<&crate::clinical::facts::OpenRecord> = facts
+        .unidentified_medications
+        .iter()
+        .filter(|m| m.in_progress || m.when.is_none_or(|t| facts.now - t.latest <= window_s))
+        .collect();
+    if near.is_empty() {
+        return;
+    }
+    let what: Vec<String> = near.iter().map(|m| format!("{} ({})", m.source.label(), m.description)).collect();
+    plan.issues.push(SafetyIssue {
+        key: "unidentified-medication",
+        act_code: Some(("DRG", "Drug Interaction Alert")),
+        severity: IssueSeverity::Moderate,
+        title: if near.len() == 1 {
+            "One active medication could not be identified".into()
+        } else {
+            format!("{} active medications could not be identified", near.len())
+        },
+        detail: format!(
+            "{} active medication(s) could not be identified: line-compatibility and interaction checks (ceftriaxone, sodium bicarbonate, phosphate, digoxin) and the IV calcium daily maximum may be incomplete. Not identified: {}. Near the proposal means {}.",
+            near.len(),
+            what.join("; "),
+            window_text(w)
+        ),
+        implicated: near.iter().map(|m| m.source.clone()).collect(),
+        mitigation: "Check the medication record by hand (name, line, time) before giving calcium; send its RxNorm code or name to have it checked.".into(),
+    });
+}
+
+/// A Condition or finding near the calcium result that could be a symptom but is
+/// in none of the lists: the symptom state is unknown, not "none", so an
+/// oral-only plan carries the caution that IV calcium may be needed.
+fn symptoms_unknown(rules: &RuleSet, facts: &Facts, finding: &CalciumFinding, plan: &mut TreatmentPlan) {
+    let oral_only = plan.proposals.iter().any(|p| p.route == Route::Oral && p.key.contains("calcium"))
+        && !plan.proposals.iter().any(|p| p.route == Route::Iv);
+    if !oral_only || finding.is_symptomatic() {
+        return;
+    }
+    let window_s = (rules.windows.symptom_window_hours * 3600.0).round() as i64;
+    let near: Vec<&crate::clinical::facts::OpenRecord> = facts
+        .unclassified_findings
+        .iter()
+        .filter(|c| c.when.is_none_or(|w| w.min_distance(&finding.when) <= window_s))
+        .collect();
+    if near.is_empty() {
+        return;
+    }
+    let what: Vec<String> = near.iter().map(|c| format!("{} ({})", c.source.label(), c.description)).collect();
+    plan.issues.push(SafetyIssue {
+        key: "symptoms-unknown",
+        act_code: None,
+        severity: IssueSeverity::Moderate,
+        title: "Symptom state unknown: IV calcium may be needed if the child is symptomatic".into(),
+        detail: format!(
+            "Oral calcium is proposed because no symptom of hypocalcemia is recorded, but {} record(s) within {} h of the calcium result could not be classified and may be a symptom: {}.",
+            near.len(),
+            num_trim(rules.windows.symptom_window_hours),
+            what.join("; ")
+        ),
+        implicated: near.iter().map(|c| c.source.clone()).collect(),
+        mitigation: "Examine the child: with seizures, tetany, carpopedal spasm, laryngospasm, apnea or arrhythmia, give IV calcium instead of oral (local protocol).".into(),
+    });
 }
 
 /// Checks that apply whatever is proposed.

@@ -357,6 +357,8 @@ impl<'a> Reader<'a> {
 
         let mut measurements = Vec::new();
         let mut symptoms = Vec::new();
+        let mut unidentified = Vec::new();
+        let mut unclassified = Vec::new();
         let mut events = Vec::new();
         let mut gestation = None;
         for e in &entries {
@@ -365,9 +367,9 @@ impl<'a> Reader<'a> {
             }
             match e.resource_type {
                 "Observation" => self.observation(e, &index, patient, &mut measurements, &mut symptoms),
-                "Condition" => self.condition(e, &index, patient, &mut symptoms, &mut events),
+                "Condition" => self.condition(e, &index, patient, &mut symptoms, &mut events, &mut unclassified),
                 "MedicationRequest" | "MedicationStatement" | "MedicationAdministration" => {
-                    self.medication(e, &index, patient, &entries, &mut events)
+                    self.medication(e, &index, patient, &entries, &mut events, &mut unidentified)
                 }
                 "Procedure" => self.procedure(e, &index, patient, &mut events),
                 "Medication" => self
@@ -390,6 +392,8 @@ impl<'a> Reader<'a> {
                 measurements,
                 symptoms,
                 events,
+                unidentified_medications: unidentified,
+                unclassified_findings: unclassified,
                 vascular_access: self.access,
                 gestational_age_weeks: gestation,
                 now: self.now,

@@ -4,7 +4,7 @@
 use serde_json::Value;
 
 use super::{Entry, Index, Reader, codings, describe_codes, first_code, str_at};
-use crate::clinical::facts::{Code, CodedEvent, EventKind, SymptomFinding};
+use crate::clinical::facts::{Code, CodedEvent, EventKind, OpenRecord, SymptomFinding};
 use crate::clinical::time::When;
 use crate::fhir::datetime;
 use crate::fhir::profiles::Kind;
@@ -13,9 +13,20 @@ use crate::rules::model::CodeListKind;
 impl<'a> Reader<'a> {
     /// Code lists of `kind` that hold one of the concept's codings, with the matching code.
     fn lists_for(&self, kind: CodeListKind, concept: Option<&Value>) -> (Vec<String>, Option<Code>, bool) {
+        let (ids, hit, any_status, _) = self.lists_for_with_ingredient(kind, concept);
+        (ids, hit, any_status)
+    }
+
+    /// As `lists_for`, with the formulary ingredient the first matching code stands for.
+    fn lists_for_with_ingredient(
+        &self,
+        kind: CodeListKind,
+        concept: Option<&Value>,
+    ) -> (Vec<String>, Option<Code>, bool, Option<String>) {
         let mut ids = Vec::new();
         let mut hit = None;
         let mut any_status = false;
+        let mut ingredient = None;
         for (system, code) in codings(concept) {
             for list in self.rules.code_lists.iter().filter(|l| l.kind == kind) {
                 if let Some(c) = list.codes.iter().find(|c| c.system == system && c.code == code) {
@@ -23,6 +34,9 @@ impl<'a> Reader<'a> {
                         ids.push(list.id.clone());
                     }
                     any_status |= list.any_status;
+                    if hit.is_none() {
+                        ingredient.clone_from(&c.ingredient);
+                    }
                     hit.get_or_insert_with(|| Code {
                         system: c.system.clone(),
                         code: c.code.clone(),
@@ -31,7 +45,44 @@ impl<'a> Reader<'a> {
                 }
             }
         }
-        (ids, hit, any_status)
+        (ids, hit, any_status, ingredient)
+    }
+
+    /// The fallback when no code matched: the medication lists whose ingredient
+    /// names occur, as whole words and ignoring case, in the concept's text or a
+    /// coding's display. Returns the lists, the name matched, the text it was
+    /// found in and the ingredient (a name naming one salt first).
+    fn lists_by_name(&self, concept: Option<&Value>) -> Option<(Vec<String>, String, String, Option<String>)> {
+        let texts: Vec<&str> = concept
+            .into_iter()
+            .flat_map(|c| {
+                let text = str_at(c, "text");
+                let displays = c
+                    .get("coding")
+                    .and_then(Value::as_array)
+                    .into_iter()
+                    .flatten()
+                    .filter_map(|x| str_at(x, "display"));
+                text.into_iter().chain(displays)
+            })
+            .collect();
+        let mut ids: Vec<String> = Vec::new();
+        let mut first: Option<(String, String, Option<String>)> = None;
+        for list in self.rules.code_lists.iter().filter(|l| l.kind == CodeListKind::Medication) {
+            for n in &list.names {
+                if let Some(t) = texts.iter().find(|t| has_words(t, &n.name)) {
+                    if !ids.contains(&list.id) {
+                        ids.push(list.id.clone());
+                    }
+                    let better = first.as_ref().is_none_or(|f| f.2.is_none() && n.ingredient.is_some());
+                    if better {
+                        first = Some((n.name.clone(), (*t).to_owned(), n.ingredient.clone()));
+                    }
+                }
+            }
+        }
+        let (name, text, ingredient) = first?;
+        Some((ids, name, text, ingredient))
     }
 
     /// A dateTime element, checked; `Err(())` after setting the resource aside.
@@ -64,6 +115,7 @@ impl<'a> Reader<'a> {
         patient: &Entry<'_>,
         symptoms: &mut Vec<SymptomFinding>,
         events: &mut Vec<CodedEvent>,
+        unclassified: &mut Vec<OpenRecord>,
     ) {
         if !self.common_checks(e, Kind::Condition) {
             return;
@@ -72,10 +124,7 @@ impl<'a> Reader<'a> {
         let symptom = self.symptom_code(r.get("code"));
         let (lists, listed_code, any_status) = self.lists_for(CodeListKind::Condition, r.get("code"));
         if symptom.is_none() && lists.is_empty() {
-            self.ignore(
-                e,
-                format!("code {} is not a symptom or a condition the rules read", describe_codes(r.get("code"))),
-            );
+            self.unclassified_condition(e, index, patient, unclassified);
             return;
         }
         let verification = first_code(r.get("verificationStatus"));
@@ -114,8 +163,49 @@ impl<'a> Reader<'a> {
                 when_text,
                 code,
                 source: self.source(e, ""),
+                by_name: None,
+                ingredient: None,
             });
         }
+    }
+
+    /// A Condition whose code is in none of the rule set's lists. It could be a
+    /// symptom the service does not know (a problem-list item or encounter
+    /// diagnosis, or a Condition without a category) when it is current:
+    /// clinicalStatus active/recurrence/relapse or not given, verification not
+    /// refuted or entered-in-error. Kept with its time for the symptom state;
+    /// other categories (e.g. health concerns) are only listed as not used.
+    fn unclassified_condition(
+        &mut self,
+        e: &Entry<'_>,
+        index: &Index<'_>,
+        patient: &Entry<'_>,
+        out: &mut Vec<OpenRecord>,
+    ) {
+        let r = e.resource;
+        let description = describe_codes(r.get("code"));
+        let not_used = format!("code {description} is not a symptom or a condition the rules read");
+        let categories: Vec<&str> = r
+            .get("category")
+            .and_then(Value::as_array)
+            .into_iter()
+            .flatten()
+            .flat_map(|c| codings(Some(c)).map(|(_, code)| code))
+            .collect();
+        let symptom_like = categories.is_empty()
+            || categories.iter().any(|c| matches!(*c, "problem-list-item" | "encounter-diagnosis"));
+        let verification = first_code(r.get("verificationStatus"));
+        let clinical = first_code(r.get("clinicalStatus"));
+        let current = clinical.is_none_or(|c| matches!(c, "active" | "recurrence" | "relapse"))
+            && !matches!(verification, Some("entered-in-error" | "refuted"));
+        if !symptom_like || !current || !self.subject_ok(e, index, patient) {
+            self.ignore(e, not_used);
+            return;
+        }
+        let onset = str_at(r, "onsetDateTime").or_else(|| str_at(r, "recordedDate"));
+        let Ok(when) = self.time_of(e, ".onsetDateTime", onset) else { return };
+        self.ignore(e, format!("{not_used}; it could be a symptom the service does not recognise, so the symptom state is unknown when it is near the calcium result"));
+        out.push(OpenRecord { when: when.map(|(w, _)| w), in_progress: false, description, source: self.source(e, "") });
     }
 
     pub(super) fn medication(
@@ -125,6 +215,7 @@ impl<'a> Reader<'a> {
         patient: &Entry<'_>,
         entries: &[Entry<'_>],
         events: &mut Vec<CodedEvent>,
+        out_unidentified: &mut Vec<OpenRecord>,
     ) {
         let kind = match e.resource_type {
             "MedicationRequest" => Kind::MedicationRequest,
@@ -156,13 +247,43 @@ impl<'a> Reader<'a> {
             }?;
             med.get("code").cloned()
         });
-        let (lists, code, _) = self.lists_for(CodeListKind::Medication, concept.as_ref());
-        let Some(code) = code else {
-            self.ignore(
-                e,
-                format!("medication {} is not in the rule set's medication lists", describe_codes(concept.as_ref())),
-            );
-            return;
+        let (mut lists, code, _, mut ingredient) =
+            self.lists_for_with_ingredient(CodeListKind::Medication, concept.as_ref());
+        let mut by_name = None;
+        let code = match code {
+            Some(c) => c,
+            None => match self.lists_by_name(concept.as_ref()) {
+                Some((ids, name, text, ing)) => {
+                    lists = ids;
+                    ingredient = ing;
+                    by_name = Some(text.clone());
+                    Code {
+                        system: String::new(),
+                        code: String::new(),
+                        display: format!("{name} (identified by name '{text}')"),
+                    }
+                }
+                None => {
+                    let named = concept.as_ref().is_some_and(|c| {
+                        str_at(c, "text").is_some_and(|t| !t.trim().is_empty())
+                            || c.get("coding")
+                                .and_then(Value::as_array)
+                                .is_some_and(|a| a.iter().any(|x| str_at(x, "display").is_some()))
+                    });
+                    if !named && usable {
+                        self.unidentified(e, index, patient, concept.as_ref(), status, out_unidentified);
+                        return;
+                    }
+                    self.ignore(
+                        e,
+                        format!(
+                            "medication {} is not in the rule set's medication lists",
+                            describe_codes(concept.as_ref())
+                        ),
+                    );
+                    return;
+                }
+            },
         };
         if !usable {
             self.ignore(e, format!("status '{status}': not a current or recent medication"));
@@ -201,7 +322,46 @@ impl<'a> Reader<'a> {
             when_text,
             code,
             source: self.source(e, ""),
+            by_name,
+            ingredient,
         });
+    }
+
+    /// A medication record with no listed code and no readable name: kept, with
+    /// its time and status, so the safety checks can say they may be incomplete.
+    fn unidentified(
+        &mut self,
+        e: &Entry<'_>,
+        index: &Index<'_>,
+        patient: &Entry<'_>,
+        concept: Option<&Value>,
+        status: &str,
+        out: &mut Vec<OpenRecord>,
+    ) {
+        if !self.subject_ok(e, index, patient) {
+            return;
+        }
+        let r = e.resource;
+        let (path, text) = match e.resource_type {
+            "MedicationRequest" => (".authoredOn", str_at(r, "authoredOn").map(str::to_owned)),
+            _ => match str_at(r, "effectiveDateTime") {
+                Some(t) => (".effectiveDateTime", Some(t.to_owned())),
+                None => (".effectivePeriod", Self::period_start(r, "effectivePeriod")),
+            },
+        };
+        let Ok(when) = self.time_of(e, path, text.as_deref()) else { return };
+        let in_progress = matches!(
+            (e.resource_type, status),
+            ("MedicationAdministration", "in-progress")
+                | ("MedicationRequest", "active" | "on-hold")
+                | ("MedicationStatement", "active" | "intended")
+        );
+        let description = describe_codes(concept);
+        self.ignore(
+            e,
+            format!("medication {description} could not be identified (no listed code, no name); raised with the safety checks when near the proposal"),
+        );
+        out.push(OpenRecord { when: when.map(|(w, _)| w), in_progress, description, source: self.source(e, "") });
     }
 
     pub(super) fn procedure(
@@ -246,6 +406,35 @@ impl<'a> Reader<'a> {
             when_text,
             code,
             source: self.source(e, ""),
+            by_name: None,
+            ingredient: None,
         });
+    }
+}
+
+/// `needle` occurs in `hay` as whole words, ignoring case ("Calcium Gluconate
+/// 10% inj" holds "calcium gluconate"; "calciumgluconate" does not).
+fn has_words(hay: &str, needle: &str) -> bool {
+    let words = |t: &str| -> Vec<String> {
+        t.split(|c: char| !c.is_alphanumeric()).filter(|w| !w.is_empty()).map(str::to_lowercase).collect()
+    };
+    let (h, n) = (words(hay), words(needle));
+    !n.is_empty() && h.windows(n.len()).any(|w| w == n.as_slice())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::has_words;
+
+    #[test]
+    fn names_match_as_whole_words_ignoring_case() {
+        assert!(has_words("Calcium Gluconate 10% 1 g IV", "calcium gluconate"));
+        assert!(has_words("cefTRIAXone 1 GM Injection", "ceftriaxone"));
+        assert!(has_words("Sodium bicarbonate 4.2% infusion", "sodium bicarbonate"));
+        // Not part of a longer word, not the words apart.
+        assert!(!has_words("calciumgluconate", "calcium gluconate"));
+        assert!(!has_words("calcium and gluconate", "calcium gluconate"));
+        assert!(!has_words("digoxinum", "digoxin"));
+        assert!(!has_words("", "digoxin"));
     }
 }

@@ -308,6 +308,9 @@ pub struct SafetyPolicy {
     pub digoxin_current: RecencyWindow,
     /// When a recorded sodium bicarbonate counts as current.
     pub bicarbonate_current: RecencyWindow,
+    /// When a medication record the service cannot identify counts as near the
+    /// proposal (running or active, or recorded within the window).
+    pub unidentified_medication_current: RecencyWindow,
 }
 
 /// A medication counts as current for a safety check when it is running (an
