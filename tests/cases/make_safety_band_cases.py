@@ -830,15 +830,13 @@ safety_present = ["precipitation"]
 safety_absent = {absent("precipitation", extra=["saline-diluent"])}
 ''')
 
-c = Case("name-only-calcium-given-counted", "Ashcombe", ["Delphine"], "female", "2019-10-20")
+c = Case("rxnorm-calcium-given-counted", "Ashcombe", ["Delphine"], "female", "2019-10-20")
 c.lab("ica", 0.84, R).symptom("seizure", SZ).lab("weight", 22.0, W)
 medication(c, "MedicationAdministration", "completed",
-           {"coding": [{"system": RXNORM, "display": "calcium gluconate 100 MG/ML Injectable Solution"}],
-            "text": "Calcium gluconate 10% IV"},
-           "2026-11-30T05:00:00-05:00", dose_mg=3000)
+           {"coding": [{"system": RXNORM, "code": "1668250"}]}, "2026-11-30T05:00:00-05:00", dose_mg=3000)
 c.access = "peripheral"
 write(c, f'''
-description = "Girl 7 y 1 mo, 22 kg, ionized Ca 0.84 mmol/L (severe: high) with a seizure; 3000 mg IV calcium gluconate given at 05:00, recorded with an RxNorm display and text but no code in the lists: identified by name as calcium gluconate, it is counted toward the daily maximum of the US label's pediatric rate."
+description = "Girl 7 y 1 mo, 22 kg, ionized Ca 0.84 mmol/L (severe: high) with a seizure; 3000 mg IV calcium gluconate given at 05:00, coded only in RxNorm (1668250, the 10% calcium gluconate injection of openFDA NDC 0143-9180; no ATC code, no text): its salt is found from the code, and it is counted toward the daily maximum of the US label's pediatric rate."
 now = "{NOW}"
 # Infusion 8 mg/kg/h x 22 kg = 176 mg/h = 4224 mg over 24 h; daily maximum 13 mg/kg/h x 24 h x 22 kg = 6864 mg
 # (US label, pediatric 8-13 mg/kg/h). 3000 + 4224 = 7224 > 6864: the daily-maximum check fires.
@@ -847,6 +845,20 @@ severity = "high"
 proposals = ["calcium-bolus", "calcium-infusion"]
 safety_present = ["daily-maximum", "extravasation"]
 safety_absent = {absent("daily-maximum", "extravasation", extra=["saline-diluent"])}
+''')
+
+c = Case("rxnorm-bicarbonate-running", "Ashcombe", ["Lucan"], "male", "2022-02-11")
+c.lab("ica", 0.84, R).symptom("seizure", SZ).lab("weight", 15.0, W)
+medication(c, "MedicationAdministration", "in-progress",
+           {"coding": [{"system": RXNORM, "code": "1868486"}]}, "2026-11-30T07:00:00-05:00")
+c.access = "central"
+write(c, f'''
+description = "Boy 4 y 9 mo, ionized Ca 0.84 mmol/L (severe: high) with a seizure, central line, with a sodium bicarbonate infusion running that is coded only in RxNorm (1868486, the 8.4% sodium bicarbonate injection of openFDA NDC 71357-004): the calcium-bicarbonate precipitation warning (calcium gluconate label) fires on the RxNorm code."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
+safety_present = ["precipitation"]
+safety_absent = {absent("precipitation", extra=["saline-diluent"])}
 ''')
 
 c = Case("unidentified-medication-warning", "Ashcombe", ["Ingrid"], "female", "2020-03-09")
