@@ -441,14 +441,19 @@ fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given 
         // The product whose code the record carries; else, for a code or name that
         // gives only the ingredient, that ingredient's product for the reference
         // route (an administration counted here is taken as intravenous).
-        let product = rules
-            .products
-            .iter()
-            .find(|p| p.codes.iter().any(|c| c.system == e.code.system && c.code == e.code.code))
-            .or_else(|| {
-                let ing = e.ingredient.as_deref()?;
-                rules.products.iter().find(|p| p.ingredient == ing && p.route == reference.route)
-            });
+        let by_code =
+            rules.products.iter().find(|p| p.codes.iter().any(|c| c.system == e.code.system && c.code == e.code.code));
+        let product = by_code.or_else(|| {
+            let ing = e.ingredient.as_deref()?;
+            let p = rules.products.iter().find(|p| p.ingredient == ing && p.route == reference.route)?;
+            g.conversions.push(format!(
+                "{}: salt {} from its {}, counted as intravenous",
+                e.source.label(),
+                p.salt.as_deref().unwrap_or(&p.label),
+                if e.by_name.is_some() { "name" } else { "code" }
+            ));
+            Some(p)
+        });
         match product {
             Some(p) if p.route != reference.route => {
                 g.uncounted.push((e.source.clone(), "not intravenous, not part of the IV maximum"));
@@ -1831,6 +1836,140 @@ mod tests {
                 let ml: f64 = text.split(" mg = ").nth(1).and_then(|t| t.split(" mL").next()).and_then(|t| t.parse().ok()).expect("a volume");
                 prop_assert!((ml * per_ml - here).abs() <= 0.005 * per_ml + 0.05, "{ml} mL x {per_ml} mg/mL != {here} mg");
             }
+        }
+    }
+}
+
+/// Medication records identified by RxNorm or by name, unidentified ones, and an
+/// unknown symptom state (issue 13, sections 2 and 6).
+#[cfg(test)]
+mod record_tests {
+    use super::*;
+    use crate::clinical::facts::{Code, OpenRecord, Symptom};
+    use crate::clinical::status;
+    use crate::clinical::testing::*;
+    use crate::clinical::time::PartialDate;
+
+    fn seven() -> Option<PartialDate> {
+        born_days_ago(7 * 365 + 30)
+    }
+
+    fn weight(kg: f64) -> crate::clinical::facts::Measurement {
+        lab(Analyte::BodyWeight, kg, "kg", "wt")
+    }
+
+    /// A 7-year-old girl of 22 kg with ionized calcium `ica`, the events and open records.
+    fn plan_for(ica: f64, events: Vec<CodedEvent>, meds: Vec<OpenRecord>, findings: Vec<OpenRecord>) -> TreatmentPlan {
+        let r = rules();
+        let mut facts = facts_of(seven(), Gender::Female, vec![ionized(ica, 1, "ica"), weight(22.0)], events);
+        facts.unidentified_medications = meds;
+        facts.unclassified_findings = findings;
+        let a = status::assess(&facts, &r);
+        plan(&r, &facts, &a.finding.expect("finding"), None).expect("a plan")
+    }
+
+    fn open(hours_ago: i64, in_progress: bool, id: &str) -> OpenRecord {
+        OpenRecord {
+            when: Some(at(now() - hours_ago * HOUR)),
+            in_progress,
+            description: format!("urn:test|{id}"),
+            source: Source { resource_type: "MedicationRequest".into(), reference: Some(format!("X/{id}")), expression: id.into() },
+        }
+    }
+
+    /// A completed IV calcium administration of `mg`, 3 h ago, with a code the
+    /// formulary products do not hold and the ingredient the code list gives.
+    fn given_rxnorm(ingredient: Option<&str>, mg: f64) -> CodedEvent {
+        let mut e = event(EventKind::Medication, "calcium_preparations", 3, "rx");
+        e.source.resource_type = "MedicationAdministration".into();
+        e.code = Code { system: "http://www.nlm.nih.gov/research/umls/rxnorm".into(), code: "1668250".into(), display: "x".into() };
+        e.ingredient = ingredient.map(str::to_owned);
+        e.dose_mg = Some(mg);
+        e
+    }
+
+    fn keys(p: &TreatmentPlan) -> Vec<&'static str> {
+        p.issues.iter().map(|i| i.key).collect()
+    }
+
+    #[test]
+    fn an_unidentified_medication_near_the_proposal_is_a_warning_on_it() {
+        // Window 24 h (treatment.safety.unidentified_medication_current).
+        for (what, rec, fires) in [
+            ("an active order written 3 days ago", open(72, true, "a"), true),
+            ("a record 20 h ago", open(20, false, "b"), true),
+            ("a record 30 h ago, not running", open(30, false, "c"), false),
+        ] {
+            let p = plan_for(0.85, vec![], vec![rec], vec![]);
+            let issue = p.issues.iter().find(|i| i.key == "unidentified-medication");
+            assert_eq!(issue.is_some(), fires, "{what}: {:?}", keys(&p));
+            if let Some(i) = issue {
+                assert_eq!(i.severity, IssueSeverity::Moderate);
+                assert!(i.detail.contains("line-compatibility and interaction checks"), "{}", i.detail);
+            }
+        }
+    }
+
+    #[test]
+    fn calcium_coded_by_an_ingredient_finds_its_salt_for_the_daily_maximum() {
+        // 22 kg: infusion 8 mg/kg/h = 176 mg/h, 4224 mg over 24 h; maximum 13 x 24 x 22 = 6864 mg.
+        // 3000 mg gluconate: 4224 + 3000 = 7224 > 6864: fires.
+        let p = plan_for(0.85, vec![given_rxnorm(Some("calcium_gluconate"), 3000.0)], vec![], vec![]);
+        assert!(keys(&p).contains(&"daily-maximum"), "{:?}", keys(&p));
+        // 1000 mg chloride = 1000 x 27.3/100 = 273 mg calcium = 273 / (9.3/100) = 2935.48 mg
+        // gluconate equivalent; 4224 + 2935.48 = 7159.48 > 6864: fires, with the conversion shown.
+        let p = plan_for(0.85, vec![given_rxnorm(Some("calcium_chloride"), 1000.0)], vec![], vec![]);
+        let i = p.issues.iter().find(|i| i.key == "daily-maximum").expect("counted as chloride");
+        assert!(i.detail.contains("(2935.48 mg)"), "{}", i.detail);
+    }
+
+    #[test]
+    fn calcium_of_unknown_salt_makes_the_daily_maximum_a_warning() {
+        // No product holds the code and no ingredient is given: not counted (4224 < 6864, so
+        // the maximum itself stays silent) and the incomplete count is raised.
+        let p = plan_for(0.85, vec![given_rxnorm(None, 3000.0)], vec![], vec![]);
+        assert!(!keys(&p).contains(&"daily-maximum"), "{:?}", keys(&p));
+        let i = p.issues.iter().find(|i| i.key == "daily-maximum-incomplete").expect("raised");
+        assert_eq!(i.severity, IssueSeverity::Moderate);
+        assert_eq!(i.implicated.len(), 1);
+    }
+
+    #[test]
+    fn a_name_match_is_said_on_the_check_it_raised() {
+        let mut e = event(EventKind::Medication, "sodium_bicarbonate", 1, "bic");
+        e.source.resource_type = "MedicationAdministration".into();
+        e.in_progress = true;
+        e.by_name = Some("Sodium Bicarbonate 4.2% infusion".into());
+        let p = plan_for(0.85, vec![e], vec![], vec![]);
+        let i = p.issues.iter().find(|i| i.key == "precipitation").expect("raised");
+        assert!(i.detail.contains("identified by name 'Sodium Bicarbonate 4.2% infusion'"), "{}", i.detail);
+    }
+
+    #[test]
+    fn an_unclassified_finding_makes_the_oral_proposal_carry_the_caution() {
+        // Ionized 1.05 (drawn 1 h ago): oral only. Symptom window 72 h (calcium.toml).
+        let p = plan_for(1.05, vec![], vec![], vec![open(2, false, "c")]);
+        assert!(p.proposals.iter().all(|x| x.route == Route::Oral));
+        assert!(keys(&p).contains(&"symptoms-unknown"), "{:?}", keys(&p));
+        // 100 h before the draw: outside the window, nothing said.
+        let p = plan_for(1.05, vec![], vec![], vec![open(101, false, "c")]);
+        assert!(!keys(&p).contains(&"symptoms-unknown"), "{:?}", keys(&p));
+        // No unclassified record: nothing said.
+        let p = plan_for(1.05, vec![], vec![], vec![]);
+        assert!(!keys(&p).contains(&"symptoms-unknown"));
+    }
+
+    #[test]
+    fn new_symptoms_make_the_child_symptomatic() {
+        for s in [Symptom::Tetany, Symptom::Apnea, Symptom::Hypotension, Symptom::Cyanosis] {
+            let r = rules();
+            let mut facts = facts_of(seven(), Gender::Female, vec![ionized(1.05, 1, "ica"), weight(22.0)], vec![]);
+            let mut f = seizure(Some(2));
+            f.symptom = s;
+            facts.symptoms.push(f);
+            let a = status::assess(&facts, &r);
+            let p = plan(&r, &facts, &a.finding.expect("finding"), None).expect("a plan");
+            assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"), "{s:?}");
         }
     }
 }

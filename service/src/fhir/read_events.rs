@@ -425,6 +425,109 @@ fn has_words(hay: &str, needle: &str) -> bool {
 #[cfg(test)]
 mod tests {
     use super::has_words;
+    use crate::clinical::facts::{Facts, Symptom};
+    use crate::clinical::testing::{now, shared_rules};
+    use crate::fhir::profiles::Profiles;
+    use serde_json::{Value, json};
+
+    /// Read a Bundle of a patient and `resources` at the case clock (2026-11-30T15:00Z).
+    fn read(resources: Vec<Value>) -> Facts {
+        let mut entries = vec![json!({ "fullUrl": "urn:uuid:00000000-0000-4000-8000-000000000001",
+            "resource": { "resourceType": "Patient", "birthDate": "2019-06-02", "gender": "female" } })];
+        for (i, r) in resources.into_iter().enumerate() {
+            entries.push(json!({ "fullUrl": format!("urn:uuid:00000000-0000-4000-8000-0000000001{i:02}"), "resource": r }));
+        }
+        let bundle = json!({ "resourceType": "Bundle", "type": "collection", "entry": entries });
+        let profiles = Profiles::compile().expect("profiles compile");
+        crate::fhir::read::read_value(&bundle, shared_rules(), &profiles, now(), true).expect("readable").facts
+    }
+
+    fn med(concept: Value) -> Value {
+        json!({ "resourceType": "MedicationRequest", "status": "active", "intent": "order",
+            "medicationCodeableConcept": concept,
+            "subject": { "reference": "urn:uuid:00000000-0000-4000-8000-000000000001" },
+            "authoredOn": "2026-11-30T06:00:00-05:00" })
+    }
+
+    fn condition(system: &str, code: &str, category: Option<&str>) -> Value {
+        let mut c = json!({ "resourceType": "Condition",
+            "clinicalStatus": { "coding": [{ "system": "http://terminology.hl7.org/CodeSystem/condition-clinical", "code": "active" }] },
+            "code": { "coding": [{ "system": system, "code": code }] },
+            "subject": { "reference": "urn:uuid:00000000-0000-4000-8000-000000000001" },
+            "onsetDateTime": "2026-11-30T06:50:00-05:00" });
+        if let Some(cat) = category {
+            c["category"] = json!([{ "coding": [{ "system": "http://terminology.hl7.org/CodeSystem/condition-category", "code": cat }] }]);
+        }
+        c
+    }
+
+    #[test]
+    fn an_rxnorm_code_is_matched_with_its_salt() {
+        // 1668250: calcium gluconate 10% injection (cause-codes.toml, ingredient calcium_gluconate).
+        let f = read(vec![med(json!({ "coding": [{ "system": "http://www.nlm.nih.gov/research/umls/rxnorm", "code": "1668250" }] }))]);
+        assert_eq!(f.events.len(), 1);
+        let e = &f.events[0];
+        assert_eq!(e.lists, vec!["calcium_preparations".to_owned()]);
+        assert_eq!(e.ingredient.as_deref(), Some("calcium_gluconate"));
+        assert!(e.by_name.is_none());
+        assert!(f.unidentified_medications.is_empty());
+    }
+
+    #[test]
+    fn without_a_listed_code_the_name_in_text_or_display_identifies_it() {
+        // A display only (an RxNorm code not in the lists): matched by the ingredient name.
+        let f = read(vec![
+            med(json!({ "coding": [{ "system": "http://www.nlm.nih.gov/research/umls/rxnorm", "code": "0000001",
+                "display": "cefTRIAXone 1 GM Injection" }] })),
+            med(json!({ "text": "Calcium Chloride 10% 500 mg IV" })),
+        ]);
+        assert_eq!(f.events.len(), 2);
+        assert_eq!(f.events[0].lists, vec!["ceftriaxone".to_owned()]);
+        assert_eq!(f.events[0].by_name.as_deref(), Some("cefTRIAXone 1 GM Injection"));
+        assert!(f.events[0].code.display.contains("identified by name"), "{}", f.events[0].code.display);
+        assert_eq!(f.events[1].lists, vec!["calcium_preparations".to_owned()]);
+        assert_eq!(f.events[1].ingredient.as_deref(), Some("calcium_chloride"));
+    }
+
+    #[test]
+    fn a_medication_with_neither_listed_code_nor_name_is_kept_as_unidentified() {
+        let f = read(vec![
+            med(json!({ "coding": [{ "system": "https://example.org/pharmacy-item", "code": "X-1" }] })),
+            // A named drug not in the lists is identified as something else: not raised.
+            med(json!({ "coding": [{ "system": "https://example.org/pharmacy-item", "code": "X-2", "display": "paracetamol 120 mg/5 mL" }] })),
+        ]);
+        assert!(f.events.is_empty());
+        assert_eq!(f.unidentified_medications.len(), 1);
+        assert!(f.unidentified_medications[0].in_progress, "an active order");
+        assert!(f.unidentified_medications[0].description.contains("X-1"));
+    }
+
+    #[test]
+    fn symptoms_charted_in_icd10cm_and_snomed_are_read() {
+        let f = read(vec![
+            condition("http://hl7.org/fhir/sid/icd-10-cm", "R29.0", Some("encounter-diagnosis")),
+            condition("http://snomed.info/sct", "1023001", Some("problem-list-item")),
+            condition("http://hl7.org/fhir/sid/icd-10-cm", "P90", None),
+        ]);
+        let got: Vec<Symptom> = f.symptoms.iter().map(|s| s.symptom).collect();
+        assert_eq!(got, vec![Symptom::Tetany, Symptom::Apnea, Symptom::Seizure]);
+        assert!(f.unclassified_findings.is_empty());
+    }
+
+    #[test]
+    fn an_unlisted_diagnosis_is_unclassified_but_a_listed_one_or_a_concern_is_not() {
+        let f = read(vec![
+            // Unlisted encounter diagnosis: could be a symptom.
+            condition("http://hl7.org/fhir/sid/icd-10-cm", "R25.8", Some("encounter-diagnosis")),
+            // Hypocalcemia itself is recognised (hypocalcemia_recorded), not a possible symptom.
+            condition("http://hl7.org/fhir/sid/icd-10-cm", "E83.51", Some("problem-list-item")),
+            // A health concern is not a charted finding.
+            condition("http://hl7.org/fhir/sid/icd-10-cm", "R25.8", Some("health-concern")),
+        ]);
+        assert_eq!(f.unclassified_findings.len(), 1);
+        assert!(f.unclassified_findings[0].description.contains("R25.8"));
+        assert!(f.symptoms.is_empty());
+    }
 
     #[test]
     fn names_match_as_whole_words_ignoring_case() {
