@@ -84,6 +84,8 @@ struct Reader<'a> {
     prefix: String,
     set_aside: Vec<SetAside>,
     now: i64,
+    /// Finding Observations that could be a symptom but are in no list (read_events.rs).
+    unclassified_observations: Vec<crate::clinical::facts::OpenRecord>,
 }
 
 fn str_at<'v>(v: &'v Value, key: &str) -> Option<&'v str> {
@@ -215,7 +217,8 @@ pub fn read_value(
             ));
         }
     };
-    let mut reader = Reader { access, rules, profiles, prefix, set_aside: Vec::new(), now };
+    let mut reader =
+        Reader { access, rules, profiles, prefix, set_aside: Vec::new(), now, unclassified_observations: Vec::new() };
     let (facts, patient_reference) = reader.bundle(bundle)?;
     Ok(Ingested {
         facts,
@@ -393,7 +396,7 @@ impl<'a> Reader<'a> {
                 symptoms,
                 events,
                 unidentified_medications: unidentified,
-                unclassified_findings: unclassified,
+                unclassified_findings: unclassified.into_iter().chain(self.unclassified_observations.drain(..)).collect(),
                 vascular_access: self.access,
                 gestational_age_weeks: gestation,
                 now: self.now,
@@ -616,7 +619,7 @@ impl<'a> Reader<'a> {
             .filter_map(|(k, c)| self.lab_code(c.get("code")).map(|code| (k, code)))
             .collect();
         if lab.is_none() && symptom.is_none() && component_codes.is_empty() {
-            self.ignore(e, format!("code {} is not one the rules read", describe_codes(r.get("code"))));
+            self.unclassified_observation(e, index, patient);
             return;
         }
         if !self.subject_ok(e, index, patient) {

@@ -10,6 +10,8 @@ use crate::fhir::datetime;
 use crate::fhir::profiles::Kind;
 use crate::rules::model::CodeListKind;
 
+const OBSERVATION_CATEGORY: &str = "http://terminology.hl7.org/CodeSystem/observation-category";
+
 impl<'a> Reader<'a> {
     /// Code lists of `kind` that hold one of the concept's codings, with the matching code.
     fn lists_for(&self, kind: CodeListKind, concept: Option<&Value>) -> (Vec<String>, Option<Code>, bool) {
@@ -206,6 +208,33 @@ impl<'a> Reader<'a> {
         let Ok(when) = self.time_of(e, ".onsetDateTime", onset) else { return };
         self.ignore(e, format!("{not_used}; it could be a symptom the service does not recognise, so the symptom state is unknown when it is near the calcium result"));
         out.push(OpenRecord { when: when.map(|(w, _)| w), in_progress: false, description, source: self.source(e, "") });
+    }
+
+    /// An Observation whose code is in none of the rule set's lists. It could be
+    /// a symptom the service does not know when it is an examination finding
+    /// (category `exam`) that is not recorded as absent (valueBoolean false);
+    /// kept with its time for the symptom state. Other Observations are only
+    /// listed as not used.
+    pub(super) fn unclassified_observation(&mut self, e: &Entry<'_>, index: &Index<'_>, patient: &Entry<'_>) {
+        let r = e.resource;
+        let description = describe_codes(r.get("code"));
+        let not_used = format!("code {description} is not one the rules read");
+        let exam = r
+            .get("category")
+            .and_then(Value::as_array)
+            .into_iter()
+            .flatten()
+            .flat_map(|c| codings(Some(c)))
+            .any(|(system, code)| system == OBSERVATION_CATEGORY && code == "exam");
+        let absent = r.get("valueBoolean") == Some(&Value::Bool(false));
+        if !exam || absent || !self.subject_ok(e, index, patient) {
+            self.ignore(e, not_used);
+            return;
+        }
+        let Some((when, _)) = self.effective(e) else { return };
+        self.ignore(e, format!("{not_used}; an examination finding that could be a symptom the service does not recognise, so the symptom state is unknown when it is near the calcium result"));
+        let rec = OpenRecord { when: Some(when), in_progress: false, description, source: self.source(e, "") };
+        self.unclassified_observations.push(rec);
     }
 
     pub(super) fn medication(
@@ -512,6 +541,20 @@ mod tests {
         let got: Vec<Symptom> = f.symptoms.iter().map(|s| s.symptom).collect();
         assert_eq!(got, vec![Symptom::Tetany, Symptom::Apnea, Symptom::Seizure]);
         assert!(f.unclassified_findings.is_empty());
+    }
+
+    #[test]
+    fn an_unlisted_examination_finding_is_unclassified_unless_recorded_absent() {
+        let obs = |value: bool, category: &str| {
+            json!({ "resourceType": "Observation", "status": "final",
+                "category": [{ "coding": [{ "system": "http://terminology.hl7.org/CodeSystem/observation-category", "code": category }] }],
+                "code": { "coding": [{ "system": "https://example.org/exam", "code": "twitching" }] },
+                "subject": { "reference": "urn:uuid:00000000-0000-4000-8000-000000000001" },
+                "effectiveDateTime": "2026-11-30T06:50:00-05:00", "valueBoolean": value })
+        };
+        let f = read(vec![obs(true, "exam"), obs(false, "exam"), obs(true, "laboratory")]);
+        assert_eq!(f.unclassified_findings.len(), 1);
+        assert!(f.unclassified_findings[0].description.contains("twitching"));
     }
 
     #[test]
