@@ -422,8 +422,13 @@ struct Given {
 }
 
 fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given {
-    let mut g =
-        Given { mg: 0.0, counted: Vec::new(), uncounted: Vec::new(), conversions: Vec::new(), unknown_salt: Vec::new() };
+    let mut g = Given {
+        mg: 0.0,
+        counted: Vec::new(),
+        uncounted: Vec::new(),
+        conversions: Vec::new(),
+        unknown_salt: Vec::new(),
+    };
     let fraction = |p: &Product| p.elemental_mg.zip(p.salt_mg).filter(|(_, s)| *s > 0.0).map(|(e, s)| e / s);
     let Some(reference_fraction) = fraction(reference) else { return g };
     for e in events_in(facts, "calcium_preparations", EventKind::Medication) {
@@ -1873,7 +1878,11 @@ mod record_tests {
             when: Some(at(now() - hours_ago * HOUR)),
             in_progress,
             description: format!("urn:test|{id}"),
-            source: Source { resource_type: "MedicationRequest".into(), reference: Some(format!("X/{id}")), expression: id.into() },
+            source: Source {
+                resource_type: "MedicationRequest".into(),
+                reference: Some(format!("X/{id}")),
+                expression: id.into(),
+            },
         }
     }
 
@@ -1882,7 +1891,11 @@ mod record_tests {
     fn given_rxnorm(ingredient: Option<&str>, mg: f64) -> CodedEvent {
         let mut e = event(EventKind::Medication, "calcium_preparations", 3, "rx");
         e.source.resource_type = "MedicationAdministration".into();
-        e.code = Code { system: "http://www.nlm.nih.gov/research/umls/rxnorm".into(), code: "1668250".into(), display: "x".into() };
+        e.code = Code {
+            system: "http://www.nlm.nih.gov/research/umls/rxnorm".into(),
+            code: "1668250".into(),
+            display: "x".into(),
+        };
         e.ingredient = ingredient.map(str::to_owned);
         e.dose_mg = Some(mg);
         e

@@ -396,7 +396,10 @@ impl<'a> Reader<'a> {
                 symptoms,
                 events,
                 unidentified_medications: unidentified,
-                unclassified_findings: unclassified.into_iter().chain(self.unclassified_observations.drain(..)).collect(),
+                unclassified_findings: unclassified
+                    .into_iter()
+                    .chain(self.unclassified_observations.drain(..))
+                    .collect(),
                 vascular_access: self.access,
                 gestational_age_weeks: gestation,
                 now: self.now,

@@ -207,7 +207,12 @@ impl<'a> Reader<'a> {
         let onset = str_at(r, "onsetDateTime").or_else(|| str_at(r, "recordedDate"));
         let Ok(when) = self.time_of(e, ".onsetDateTime", onset) else { return };
         self.ignore(e, format!("{not_used}; it could be a symptom the service does not recognise, so the symptom state is unknown when it is near the calcium result"));
-        out.push(OpenRecord { when: when.map(|(w, _)| w), in_progress: false, description, source: self.source(e, "") });
+        out.push(OpenRecord {
+            when: when.map(|(w, _)| w),
+            in_progress: false,
+            description,
+            source: self.source(e, ""),
+        });
     }
 
     /// An Observation whose code is in none of the rule set's lists. It could be
@@ -464,7 +469,9 @@ mod tests {
         let mut entries = vec![json!({ "fullUrl": "urn:uuid:00000000-0000-4000-8000-000000000001",
             "resource": { "resourceType": "Patient", "birthDate": "2019-06-02", "gender": "female" } })];
         for (i, r) in resources.into_iter().enumerate() {
-            entries.push(json!({ "fullUrl": format!("urn:uuid:00000000-0000-4000-8000-0000000001{i:02}"), "resource": r }));
+            entries.push(
+                json!({ "fullUrl": format!("urn:uuid:00000000-0000-4000-8000-0000000001{i:02}"), "resource": r }),
+            );
         }
         let bundle = json!({ "resourceType": "Bundle", "type": "collection", "entry": entries });
         let profiles = Profiles::compile().expect("profiles compile");
@@ -493,7 +500,9 @@ mod tests {
     #[test]
     fn an_rxnorm_code_is_matched_with_its_salt() {
         // 1668250: calcium gluconate 10% injection (cause-codes.toml, ingredient calcium_gluconate).
-        let f = read(vec![med(json!({ "coding": [{ "system": "http://www.nlm.nih.gov/research/umls/rxnorm", "code": "1668250" }] }))]);
+        let f = read(vec![med(
+            json!({ "coding": [{ "system": "http://www.nlm.nih.gov/research/umls/rxnorm", "code": "1668250" }] }),
+        )]);
         assert_eq!(f.events.len(), 1);
         let e = &f.events[0];
         assert_eq!(e.lists, vec!["calcium_preparations".to_owned()]);
@@ -523,7 +532,9 @@ mod tests {
         let f = read(vec![
             med(json!({ "coding": [{ "system": "https://example.org/pharmacy-item", "code": "X-1" }] })),
             // A named drug not in the lists is identified as something else: not raised.
-            med(json!({ "coding": [{ "system": "https://example.org/pharmacy-item", "code": "X-2", "display": "paracetamol 120 mg/5 mL" }] })),
+            med(
+                json!({ "coding": [{ "system": "https://example.org/pharmacy-item", "code": "X-2", "display": "paracetamol 120 mg/5 mL" }] }),
+            ),
         ]);
         assert!(f.events.is_empty());
         assert_eq!(f.unidentified_medications.len(), 1);
