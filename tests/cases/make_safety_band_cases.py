@@ -770,6 +770,14 @@ ICD10CM = "http://hl7.org/fhir/sid/icd-10-cm"
 LOCAL_FORMULARY = "https://larkspur.example.org/fhir/CodeSystem/pharmacy-item"
 
 
+NEW_CHECKS = ["unidentified-medication", "daily-maximum-incomplete", "symptoms-unknown"]
+
+
+def absent_new(*present):
+    """The checks added for these records, except those present."""
+    return ", ".join(f'"{k}"' for k in NEW_CHECKS if k not in present)
+
+
 def medication(case, resource_type, status, concept, when, dose_mg=None):
     """A medication record with the given CodeableConcept (no ATC code)."""
     r = {"resourceType": resource_type, "status": status, "medicationCodeableConcept": concept,
@@ -813,7 +821,7 @@ now = "{NOW}"
 severity = "high"
 proposals = ["calcium-bolus"]
 safety_present = ["ceftriaxone", "extravasation"]
-safety_absent = {absent("ceftriaxone", "extravasation", extra=["saline-diluent"])}
+safety_absent = [{absent("ceftriaxone", "extravasation", extra=["saline-diluent"])[1:-1]}, {absent_new()}]
 ''')
 
 c = Case("name-only-bicarbonate-running", "Ashcombe", ["Tobias"], "male", "2021-05-14")
@@ -827,7 +835,7 @@ now = "{NOW}"
 severity = "high"
 proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
 safety_present = ["precipitation"]
-safety_absent = {absent("precipitation", extra=["saline-diluent"])}
+safety_absent = [{absent("precipitation", extra=["saline-diluent"])[1:-1]}, {absent_new()}]
 ''')
 
 c = Case("rxnorm-calcium-given-counted", "Ashcombe", ["Delphine"], "female", "2019-10-20")
@@ -844,7 +852,7 @@ now = "{NOW}"
 severity = "high"
 proposals = ["calcium-bolus", "calcium-infusion"]
 safety_present = ["daily-maximum", "extravasation"]
-safety_absent = {absent("daily-maximum", "extravasation", extra=["saline-diluent"])}
+safety_absent = [{absent("daily-maximum", "extravasation", extra=["saline-diluent"])[1:-1]}, {absent_new()}]
 ''')
 
 c = Case("rxnorm-bicarbonate-running", "Ashcombe", ["Lucan"], "male", "2022-02-11")
@@ -858,7 +866,7 @@ now = "{NOW}"
 severity = "high"
 proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
 safety_present = ["precipitation"]
-safety_absent = {absent("precipitation", extra=["saline-diluent"])}
+safety_absent = [{absent("precipitation", extra=["saline-diluent"])[1:-1]}, {absent_new()}]
 ''')
 
 c = Case("unidentified-medication-warning", "Ashcombe", ["Ingrid"], "female", "2020-03-09")
@@ -872,7 +880,7 @@ now = "{NOW}"
 severity = "high"
 proposals = ["calcium-bolus", "calcium-infusion"]
 safety_present = ["unidentified-medication", "extravasation"]
-safety_absent = {absent("extravasation", extra=["saline-diluent"])}
+safety_absent = [{absent("extravasation", extra=["saline-diluent"])[1:-1]}, {absent_new("unidentified-medication")}]
 ''')
 
 c = Case("tetany-icd10cm-iv", "Ashcombe", ["Rowan"], "male", "2019-06-02")
@@ -885,6 +893,7 @@ now = "{NOW}"
 proposals = ["calcium-bolus", "calcium-infusion"]
 proposals_absent = ["oral-calcium"]
 safety_present = ["extravasation"]
+safety_absent = [{absent_new()}]
 ''')
 
 c = Case("apnea-snomed-neonate-iv", "Ashcombe", ["Baby Girl"], "female", "2026-11-24", "2026-11-24T22:40:00-05:00")
@@ -896,6 +905,7 @@ description = "Girl 5 days old, ionized Ca 0.95 mmol/L, with apnea charted as SN
 now = "{NOW}"
 proposals = ["calcium-bolus"]
 proposals_absent = ["oral-calcium"]
+safety_absent = [{absent_new()}]
 ''')
 
 c = Case("unclassified-condition-oral-caution", "Ashcombe", ["Perpetua"], "female", "2019-06-02")
@@ -907,6 +917,7 @@ now = "{NOW}"
 proposals = ["oral-calcium"]
 proposals_absent = ["calcium-bolus"]
 safety_present = ["symptoms-unknown"]
+safety_absent = [{absent_new("symptoms-unknown")}]
 ''')
 
 print(f"wrote {len(WRITTEN)} cases")
