@@ -285,7 +285,13 @@ fn status_steps(rules: &RuleSet, a: &Assessment, steps: &mut Vec<Step>) {
         rules.severity.symptomatic.code(),
         rules.severity.symptomatic_source
     );
-    sy.result = if f.symptoms.is_empty() {
+    sy.result = if f.symptoms.is_empty() && !f.unclassified_near.is_empty() {
+        sy.inputs.extend(f.unclassified_near.iter().map(|x| input("unclassified record", x)));
+        format!(
+            "unknown: none recognised, but {} record(s) near the result could not be classified and may be a symptom",
+            f.unclassified_near.len()
+        )
+    } else if f.symptoms.is_empty() {
         "none recorded".to_owned()
     } else {
         f.symptoms.iter().map(|x| x.symptom.label()).collect::<Vec<_>>().join(", ")

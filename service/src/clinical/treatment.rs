@@ -1045,12 +1045,9 @@ fn symptoms_unknown(rules: &RuleSet, facts: &Facts, finding: &CalciumFinding, pl
     if !oral_only || finding.is_symptomatic() {
         return;
     }
-    let window_s = (rules.windows.symptom_window_hours * 3600.0).round() as i64;
-    let near: Vec<&crate::clinical::facts::OpenRecord> = facts
-        .unclassified_findings
-        .iter()
-        .filter(|c| c.when.is_none_or(|w| w.min_distance(&finding.when) <= window_s))
-        .collect();
+    // The records near the result, as the status found them (same window).
+    let near: Vec<&crate::clinical::facts::OpenRecord> =
+        facts.unclassified_findings.iter().filter(|c| finding.unclassified_near.contains(&c.source)).collect();
     if near.is_empty() {
         return;
     }
@@ -1970,6 +1967,17 @@ mod record_tests {
         // No unclassified record: nothing said.
         let p = plan_for(1.05, vec![], vec![], vec![]);
         assert!(!keys(&p).contains(&"symptoms-unknown"));
+    }
+
+    #[test]
+    fn the_status_says_the_symptom_state_is_unknown() {
+        let r = rules();
+        let mut facts = facts_of(seven(), Gender::Female, vec![ionized(1.05, 1, "ica"), weight(22.0)], vec![]);
+        facts.unclassified_findings = vec![open(2, false, "near"), open(101, false, "far")];
+        let f = status::assess(&facts, &r).finding.expect("finding");
+        // 2 h ago is 1 h from the result (inside 72 h); 101 h ago is 100 h from it (outside).
+        assert_eq!(f.unclassified_near.iter().map(Source::label).collect::<Vec<_>>(), vec!["X/near"]);
+        assert!(!f.is_symptomatic(), "unknown is not symptomatic");
     }
 
     #[test]
