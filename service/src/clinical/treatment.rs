@@ -417,8 +417,9 @@ struct Given {
     uncounted: Vec<(Source, &'static str)>,
     /// Conversions made, for the text.
     conversions: Vec<String>,
-    /// Administrations whose salt could not be found (so the count may be low).
-    unknown_salt: Vec<Source>,
+    /// IV administrations that could not be counted (salt not known, or no dose in
+    /// mg), so the count may be low.
+    unknown_salt: Vec<(Source, &'static str)>,
 }
 
 fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given {
@@ -441,6 +442,13 @@ fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given 
         }
         let Some(v) = e.dose_mg else {
             g.uncounted.push((e.source.clone(), "no dose in mg"));
+            // An oral product's dose is not part of the IV maximum either way.
+            let oral = rules.products.iter().any(|p| {
+                p.route != reference.route && p.codes.iter().any(|c| c.system == e.code.system && c.code == e.code.code)
+            });
+            if !oral {
+                g.unknown_salt.push((e.source.clone(), "the amount given is not recorded in mg"));
+            }
             continue;
         };
         // The product whose code the record carries; else, for a code or name that
@@ -485,7 +493,10 @@ fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given 
             },
             None => {
                 g.uncounted.push((e.source.clone(), "its salt is not known (not in the formulary)"));
-                g.unknown_salt.push(e.source.clone());
+                g.unknown_salt.push((
+                    e.source.clone(),
+                    "the salt (gluconate or chloride) is not known from the record, and chloride carries about three times the calcium of gluconate per mg",
+                ));
             }
         }
     }
@@ -591,22 +602,25 @@ fn infusion(
     })
 }
 
-/// IV calcium given in the last 24 h whose salt is unknown: the daily-maximum
-/// count may be too low, so the check says so where the clinician looks.
-fn unknown_salt_issue(unknown: &[Source], issues: &mut Vec<SafetyIssue>) {
+/// IV calcium given in the last 24 h that could not be counted (salt unknown, or
+/// no dose in mg): the daily-maximum count may be too low, so the check says so
+/// where the clinician looks.
+fn unknown_salt_issue(unknown: &[(Source, &'static str)], issues: &mut Vec<SafetyIssue>) {
     if unknown.is_empty() {
         return;
     }
+    let why: Vec<String> = unknown.iter().map(|(s, r)| format!("{}: {r}", s.label())).collect();
     issues.push(SafetyIssue {
         key: "daily-maximum-incomplete",
         act_code: Some(("DOSEH", "High Dose Alert")),
         severity: IssueSeverity::Moderate,
         title: "Daily maximum of IV calcium may be incomplete".into(),
         detail: format!(
-            "{} calcium administration(s) in the last 24 h could not be counted toward the daily maximum: the salt (gluconate or chloride) is not known from the record, and chloride carries about three times the calcium of gluconate per mg.",
-            unknown.len()
+            "{} calcium administration(s) in the last 24 h could not be counted toward the daily maximum, so what was already given may be more than shown: {}.",
+            unknown.len(),
+            why.join("; ")
         ),
-        implicated: unknown.to_vec(),
+        implicated: unknown.iter().map(|(s, _)| s.clone()).collect(),
         mitigation: "Check what was given (salt, amount) on the administration record and add it to the count before starting the infusion.".into(),
     });
 }
@@ -1942,6 +1956,15 @@ mod record_tests {
         let i = p.issues.iter().find(|i| i.key == "daily-maximum-incomplete").expect("raised");
         assert_eq!(i.severity, IssueSeverity::Moderate);
         assert_eq!(i.implicated.len(), 1);
+    }
+
+    #[test]
+    fn calcium_given_without_a_dose_in_mg_makes_the_daily_maximum_a_warning() {
+        let mut e = given_rxnorm(Some("calcium_gluconate"), 0.0);
+        e.dose_mg = None;
+        let p = plan_for(0.85, vec![e], vec![], vec![]);
+        let i = p.issues.iter().find(|i| i.key == "daily-maximum-incomplete").expect("raised");
+        assert!(i.detail.contains("not recorded in mg"), "{}", i.detail);
     }
 
     #[test]
