@@ -1019,4 +1019,164 @@ calcium-infusion = ["5.4 mL/h x 24 h / 3.2 kg = 40.5 mL/kg/day", "101% of the da
 ''')
 
 
+
+# Medication records as US EHRs code them, and symptoms as charted (issue 13, sections 2 and 6).
+# RxNorm, ICD-10-CM and SNOMED CT codes below are the ones in service/rules (cause-codes.toml,
+# codes.toml), each verified in the listing named there.
+# ---------------------------------------------------------------------------
+RXNORM = "http://www.nlm.nih.gov/research/umls/rxnorm"
+ICD10CM = "http://hl7.org/fhir/sid/icd-10-cm"
+LOCAL_FORMULARY = "https://larkspur.example.org/fhir/CodeSystem/pharmacy-item"
+
+
+NEW_CHECKS = ["unidentified-medication", "daily-maximum-incomplete", "symptoms-unknown"]
+
+
+def absent_new(*present):
+    """The checks added for these records, except those present."""
+    return ", ".join(f'"{k}"' for k in NEW_CHECKS if k not in present)
+
+
+def medication(case, resource_type, status, concept, when, dose_mg=None):
+    """A medication record with the given CodeableConcept (no ATC code)."""
+    r = {"resourceType": resource_type, "status": status, "medicationCodeableConcept": concept,
+         "subject": {"reference": case.subject}}
+    if resource_type == "MedicationRequest":
+        r["intent"] = "order"
+        r["authoredOn"] = when
+    elif status == "completed":
+        r["effectiveDateTime"] = when
+    else:
+        r["effectivePeriod"] = {"start": when}
+    if dose_mg is not None:
+        r["dosage"] = {"route": {"coding": [{"system": SCT, "code": "47625008", "display": "Intravenous route"}]},
+                       "dose": {"value": dose_mg, "unit": "mg", "system": UCUM, "code": "mg"}}
+    return case.add(r)
+
+
+def charted(case, system, code, display, onset, category="encounter-diagnosis"):
+    """A Condition charted with one code (ICD-10-CM or SNOMED CT)."""
+    return case.add({
+        "resourceType": "Condition",
+        "clinicalStatus": {"coding": [{"system": "http://terminology.hl7.org/CodeSystem/condition-clinical",
+                                       "code": "active"}]},
+        "category": [{"coding": [{"system": "http://terminology.hl7.org/CodeSystem/condition-category",
+                                  "code": category}]}],
+        "code": {"coding": [{"system": system, "code": code, "display": display}]},
+        "subject": {"reference": case.subject},
+        "onsetDateTime": onset,
+    })
+
+
+c = Case("rxnorm-ceftriaxone-neonate", "Ashcombe", ["Baby Boy"], "male", "2026-11-20", "2026-11-20T03:10:00-05:00")
+c.lab("ica", 0.68, R).lab("weight", 3.5, W)
+medication(c, "MedicationRequest", "active",
+           {"coding": [{"system": RXNORM, "code": "1152108", "display": "ceftriaxone Injectable Product"}]},
+           "2026-11-30T04:30:00-05:00")
+c.access = "peripheral"
+write(c, f'''
+description = "Boy 10 days old, ionized Ca 0.68 mmol/L (term-neonate severe grade 0.7: high), with an active ceftriaxone order coded only in RxNorm (1152108, ceftriaxone Injectable Product; no ATC code): the neonatal ceftriaxone contraindication (FDA safety labeling change 2012; calcium gluconate label) fires on the RxNorm code."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus"]
+safety_present = ["ceftriaxone", "extravasation"]
+safety_absent = [{absent("ceftriaxone", "extravasation", extra=["saline-diluent"])[1:-1]}, {absent_new()}]
+''')
+
+c = Case("name-only-bicarbonate-running", "Ashcombe", ["Tobias"], "male", "2021-05-14")
+c.lab("ica", 0.84, R).symptom("seizure", SZ).lab("weight", 18.0, W)
+medication(c, "MedicationAdministration", "in-progress",
+           {"text": "Sodium Bicarbonate 4.2% infusion"}, "2026-11-30T07:00:00-05:00")
+c.access = "central"
+write(c, f'''
+description = "Boy 5 y 6 mo, ionized Ca 0.84 mmol/L (severe: high) with a seizure, central line, with a sodium bicarbonate infusion running that the EHR sent as text only ('Sodium Bicarbonate 4.2% infusion', no code): matched by name, the calcium-bicarbonate precipitation warning (calcium gluconate label) fires and says the medication was identified by name."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
+safety_present = ["precipitation"]
+safety_absent = [{absent("precipitation", extra=["saline-diluent"])[1:-1]}, {absent_new()}]
+''')
+
+c = Case("rxnorm-calcium-given-counted", "Ashcombe", ["Delphine"], "female", "2019-10-20")
+c.lab("ica", 0.84, R).symptom("seizure", SZ).lab("weight", 22.0, W)
+medication(c, "MedicationAdministration", "completed",
+           {"coding": [{"system": RXNORM, "code": "1668250"}]}, "2026-11-30T05:00:00-05:00", dose_mg=3000)
+c.access = "peripheral"
+write(c, f'''
+description = "Girl 7 y 1 mo, 22 kg, ionized Ca 0.84 mmol/L (severe: high) with a seizure; 3000 mg IV calcium gluconate given at 05:00, coded only in RxNorm (1668250, the 10% calcium gluconate injection of openFDA NDC 0143-9180; no ATC code, no text): its salt is found from the code, and it is counted toward the daily maximum of the US label's pediatric rate."
+now = "{NOW}"
+# Infusion 8 mg/kg/h x 22 kg = 176 mg/h = 4224 mg over 24 h; daily maximum 13 mg/kg/h x 24 h x 22 kg = 6864 mg
+# (US label, pediatric 8-13 mg/kg/h). 3000 + 4224 = 7224 > 6864: the daily-maximum check fires.
+# Not counted, 4224 < 6864 would stay silent.
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["daily-maximum", "extravasation"]
+safety_absent = [{absent("daily-maximum", "extravasation", extra=["saline-diluent"])[1:-1]}, {absent_new()}]
+''')
+
+c = Case("rxnorm-bicarbonate-running", "Ashcombe", ["Lucan"], "male", "2022-02-11")
+c.lab("ica", 0.84, R).symptom("seizure", SZ).lab("weight", 15.0, W)
+medication(c, "MedicationAdministration", "in-progress",
+           {"coding": [{"system": RXNORM, "code": "1868486"}]}, "2026-11-30T07:00:00-05:00")
+c.access = "central"
+write(c, f'''
+description = "Boy 4 y 9 mo, ionized Ca 0.84 mmol/L (severe: high) with a seizure, central line, with a sodium bicarbonate infusion running that is coded only in RxNorm (1868486, the 8.4% sodium bicarbonate injection of openFDA NDC 71357-004): the calcium-bicarbonate precipitation warning (calcium gluconate label) fires on the RxNorm code."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
+safety_present = ["precipitation"]
+safety_absent = [{absent("precipitation", extra=["saline-diluent"])[1:-1]}, {absent_new()}]
+''')
+
+c = Case("unidentified-medication-warning", "Ashcombe", ["Ingrid"], "female", "2020-03-09")
+c.lab("ica", 0.84, R).symptom("seizure", SZ).lab("weight", 20.0, W)
+medication(c, "MedicationRequest", "active",
+           {"coding": [{"system": LOCAL_FORMULARY, "code": "LCH-77341"}]}, "2026-11-30T06:00:00-05:00")
+c.access = "peripheral"
+write(c, f'''
+description = "Girl 6 y 8 mo, ionized Ca 0.84 mmol/L (severe: high) with a seizure, with an active order carrying only a local pharmacy item code (no RxNorm, ATC, text or display): it cannot be identified, so the proposals carry a warning that line-compatibility and interaction checks may be incomplete (project decision: a check that could not run is said where the clinician looks)."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["unidentified-medication", "extravasation"]
+safety_absent = [{absent("extravasation", extra=["saline-diluent"])[1:-1]}, {absent_new("unidentified-medication")}]
+''')
+
+c = Case("tetany-icd10cm-iv", "Ashcombe", ["Rowan"], "male", "2019-06-02")
+c.lab("ica", 0.95, R).lab("weight", 23.0, W)
+charted(c, ICD10CM, "R29.0", "Tetany", SZ)
+c.access = "peripheral"
+write(c, f'''
+description = "Boy 7 y 5 mo, ionized Ca 0.95 mmol/L (mild grade: moderate), with tetany charted only as ICD-10-CM R29.0 (Tetany): read as a symptom, so the child is symptomatic and IV calcium is proposed, not oral calcium (symptomatic hypocalcemia is treated with IV calcium gluconate, US label and pediatric sources in TREATMENT-SOURCES.md)."
+now = "{NOW}"
+proposals = ["calcium-bolus", "calcium-infusion"]
+proposals_absent = ["oral-calcium"]
+safety_present = ["extravasation"]
+safety_absent = [{absent_new()}]
+''')
+
+c = Case("apnea-snomed-neonate-iv", "Ashcombe", ["Baby Girl"], "female", "2026-11-24", "2026-11-24T22:40:00-05:00")
+c.lab("ica", 0.95, R).lab("weight", 3.4, W)
+charted(c, SCT, "1023001", "Apnoea", SZ, category="problem-list-item")
+c.access = "peripheral"
+write(c, f'''
+description = "Girl 5 days old, ionized Ca 0.95 mmol/L, with apnea charted as SNOMED CT 1023001 (Apnoea): read as a symptom, so IV calcium is proposed, not oral."
+now = "{NOW}"
+proposals = ["calcium-bolus"]
+proposals_absent = ["oral-calcium"]
+safety_absent = [{absent_new()}]
+''')
+
+c = Case("unclassified-condition-oral-caution", "Ashcombe", ["Perpetua"], "female", "2019-06-02")
+c.lab("ica", 0.95, R).lab("weight", 23.0, W)
+charted(c, ICD10CM, "R25.8", "Other abnormal involuntary movements", SZ)
+write(c, f'''
+description = "Girl 7 y 5 mo, ionized Ca 0.95 mmol/L (mild grade: moderate), no recognised symptom, but an encounter diagnosis charted 50 min before the draw (ICD-10-CM R25.8, Other abnormal involuntary movements) that is in none of the symptom lists: the symptom state is unknown, not none, so the oral proposal carries the caution that IV calcium may be needed if the child is symptomatic (project decision)."
+now = "{NOW}"
+proposals = ["oral-calcium"]
+proposals_absent = ["calcium-bolus"]
+safety_present = ["symptoms-unknown"]
+safety_absent = [{absent_new("symptoms-unknown")}]
+''')
+
 print(f"wrote {len(WRITTEN)} cases")

@@ -131,6 +131,23 @@ const SAFETY_CHECKS: &[(&str, &str, &str, Applies)] = &[
         "Does the calcium infusion take a large share of a neonate's daily fluid allowance?",
         Applies::WithIvCalcium,
     ),
+        "daily-maximum-incomplete",
+        "treatment.infusion, formulary products (salt of each administration)",
+        "Was IV calcium given in 24 h whose salt is not known, so the daily-maximum count may be low?",
+        Applies::WithIvCalcium,
+    ),
+    (
+        "unidentified-medication",
+        "treatment.safety.unidentified_medication_current",
+        "Is a medication record near the proposal that could not be identified by code or name?",
+        Applies::WithCalcium,
+    ),
+    (
+        "symptoms-unknown",
+        "windows.symptom_window_hours",
+        "With oral calcium only, is a Condition near the result that could be an unrecognised symptom?",
+        Applies::WithOralCalcium,
+    ),
     ("digoxin", "safety_sources.digoxin", "Is digoxin recorded with IV calcium proposed?", Applies::WithIvCalcium),
     (
         "precipitation",
@@ -303,7 +320,13 @@ fn status_steps(rules: &RuleSet, a: &Assessment, steps: &mut Vec<Step>) {
         rules.severity.symptomatic.code(),
         rules.severity.symptomatic_source
     );
-    sy.result = if f.symptoms.is_empty() {
+    sy.result = if f.symptoms.is_empty() && !f.unclassified_near.is_empty() {
+        sy.inputs.extend(f.unclassified_near.iter().map(|x| input("unclassified record", x)));
+        format!(
+            "unknown: none recognised, but {} record(s) near the result could not be classified and may be a symptom",
+            f.unclassified_near.len()
+        )
+    } else if f.symptoms.is_empty() {
         "none recorded".to_owned()
     } else {
         f.symptoms.iter().map(|x| x.symptom.label()).collect::<Vec<_>>().join(", ")

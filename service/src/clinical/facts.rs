@@ -87,6 +87,12 @@ pub enum Symptom {
     ChvostekSign,
     TrousseauSign,
     MuscleCramp,
+    Apnea,
+    Jitteriness,
+    Cyanosis,
+    Hypotension,
+    Bronchospasm,
+    Irritability,
 }
 
 impl Symptom {
@@ -104,6 +110,12 @@ impl Symptom {
             Self::ChvostekSign => "Chvostek sign",
             Self::TrousseauSign => "Trousseau sign",
             Self::MuscleCramp => "muscle cramp",
+            Self::Apnea => "apnea",
+            Self::Jitteriness => "jitteriness",
+            Self::Cyanosis => "cyanosis",
+            Self::Hypotension => "hypotension",
+            Self::Bronchospasm => "bronchospasm",
+            Self::Irritability => "irritability",
         }
     }
 }
@@ -220,6 +232,26 @@ pub struct CodedEvent {
     /// Current: an administration in progress, an active order, or a statement
     /// that the medication is being taken (MedicationStatement.status active).
     pub in_progress: bool,
+    /// Set when no code matched and the medication was identified by its name
+    /// (text or coding display): the text that matched.
+    pub by_name: Option<String>,
+    /// The formulary ingredient (e.g. `calcium_gluconate`) the matched code or
+    /// name stands for, when the rule data says; used to find a salt.
+    pub ingredient: Option<String>,
+}
+
+/// A record the service could not classify: a medication it cannot identify,
+/// or a Condition / finding Observation whose code is in none of its lists.
+#[derive(Debug, Clone)]
+pub struct OpenRecord {
+    /// When (onset, authored, administered, effective), if known.
+    pub when: Option<When>,
+    /// Running, active or being taken (medications).
+    pub in_progress: bool,
+    /// How it was coded, for the text (codes and text as given).
+    pub description: String,
+    /// Where it came from.
+    pub source: Source,
 }
 
 /// The vascular access the request says the child has (a `vascularAccess`
@@ -290,6 +322,12 @@ pub struct Facts {
     pub symptoms: Vec<SymptomFinding>,
     /// Conditions, medications and procedures in the rule set's code lists.
     pub events: Vec<CodedEvent>,
+    /// Medication records that could not be identified (no code in the lists,
+    /// no readable name).
+    pub unidentified_medications: Vec<OpenRecord>,
+    /// Conditions and finding Observations that could be a symptom but whose
+    /// code is in none of the rule set's lists.
+    pub unclassified_findings: Vec<OpenRecord>,
     /// The vascular access, as the request states it.
     pub vascular_access: VascularAccess,
     /// Gestational age at birth in weeks, if recorded.

@@ -143,6 +143,10 @@ pub struct CalciumFinding {
     pub grade: Option<GradeHit>,
     /// Symptoms that count.
     pub symptoms: Vec<SymptomFinding>,
+    /// Records near the result that could be a symptom but could not be
+    /// classified (Conditions and exam findings in no list): with no symptom
+    /// recorded, the symptom state is unknown rather than none.
+    pub unclassified_near: Vec<Source>,
     /// QTc, when one was recorded close to the result.
     pub qtc: Option<QtcFinding>,
     /// DetectedIssue severity, when low.
@@ -479,6 +483,21 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
 
     // Symptoms and QTc near the result.
     let symptoms = symptoms_near(&mut ctx, calcium);
+    let window = ctx.hours(ctx.rules.windows.symptom_window_hours);
+    let unclassified_near: Vec<Source> = facts
+        .unclassified_findings
+        .iter()
+        .filter(|c| c.when.is_none_or(|w| w.min_distance(&calcium.when) <= window))
+        .map(|c| c.source.clone())
+        .collect();
+    if symptoms.is_empty() && !unclassified_near.is_empty() {
+        ctx.basis.push(format!(
+            "Symptom state unknown: {} record(s) within {} h could not be classified and may be a symptom ({}).",
+            unclassified_near.len(),
+            num(rules.windows.symptom_window_hours, 0),
+            unclassified_near.iter().map(Source::label).collect::<Vec<_>>().join(", ")
+        ));
+    }
     let qtc = qtc_near(&mut ctx, calcium);
     for s in &symptoms {
         ctx.basis.push(format!(
@@ -515,6 +534,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         classification,
         grade,
         symptoms,
+        unclassified_near,
         qtc,
         severity: None,
         evidence,

@@ -86,6 +86,8 @@ pub fn facts(birth: Option<PartialDate>, measurements: Vec<Measurement>) -> Fact
         measurements,
         symptoms: Vec::new(),
         events: Vec::new(),
+        unidentified_medications: Vec::new(),
+        unclassified_findings: Vec::new(),
         vascular_access: Default::default(),
         gestational_age_weeks: None,
         birth_weight_kg: None,
@@ -130,6 +132,8 @@ pub fn event(kind: EventKind, list: &str, hours_ago: i64, id: &str) -> CodedEven
         code: Code { system: "urn:test".into(), code: list.into(), display: list.into() },
         dose_mg: None,
         in_progress: false,
+        by_name: None,
+        ingredient: None,
         source: Source {
             resource_type: match kind {
                 EventKind::Condition => "Condition",

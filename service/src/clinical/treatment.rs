@@ -650,6 +650,9 @@ pub fn plan(
     }
     plan.notes.push(t.vitamin_d.diet_advice.clone());
     safety_with_proposals(rules, facts, finding, &ctx, &mut plan);
+    unidentified_medications(rules, facts, &mut plan);
+    symptoms_unknown(rules, facts, finding, &mut plan);
+    mark_name_matches(facts, &mut plan.issues);
     plan.weight = weight.ok();
     Some(plan)
 }
@@ -743,10 +746,19 @@ struct Given {
     uncounted: Vec<(Source, &'static str)>,
     /// Conversions made, for the text.
     conversions: Vec<String>,
+    /// IV administrations that could not be counted (salt not known, or no dose in
+    /// mg), so the count may be low.
+    unknown_salt: Vec<(Source, &'static str)>,
 }
 
 fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given {
-    let mut g = Given { mg: 0.0, counted: Vec::new(), uncounted: Vec::new(), conversions: Vec::new() };
+    let mut g = Given {
+        mg: 0.0,
+        counted: Vec::new(),
+        uncounted: Vec::new(),
+        conversions: Vec::new(),
+        unknown_salt: Vec::new(),
+    };
     let fraction = |p: &Product| p.elemental_mg.zip(p.salt_mg).filter(|(_, s)| *s > 0.0).map(|(e, s)| e / s);
     let Some(reference_fraction) = fraction(reference) else { return g };
     for e in events_in(facts, "calcium_preparations", EventKind::Medication) {
@@ -759,10 +771,31 @@ fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given 
         }
         let Some(v) = e.dose_mg else {
             g.uncounted.push((e.source.clone(), "no dose in mg"));
+            // An oral product's dose is not part of the IV maximum either way.
+            let oral = rules.products.iter().any(|p| {
+                p.route != reference.route && p.codes.iter().any(|c| c.system == e.code.system && c.code == e.code.code)
+            });
+            if !oral {
+                g.unknown_salt.push((e.source.clone(), "the amount given is not recorded in mg"));
+            }
             continue;
         };
-        let product =
+        // The product whose code the record carries; else, for a code or name that
+        // gives only the ingredient, that ingredient's product for the reference
+        // route (an administration counted here is taken as intravenous).
+        let by_code =
             rules.products.iter().find(|p| p.codes.iter().any(|c| c.system == e.code.system && c.code == e.code.code));
+        let product = by_code.or_else(|| {
+            let ing = e.ingredient.as_deref()?;
+            let p = rules.products.iter().find(|p| p.ingredient == ing && p.route == reference.route)?;
+            g.conversions.push(format!(
+                "{}: salt {} from its {}, counted as intravenous",
+                e.source.label(),
+                p.salt.as_deref().unwrap_or(&p.label),
+                if e.by_name.is_some() { "name" } else { "code" }
+            ));
+            Some(p)
+        });
         match product {
             Some(p) if p.route != reference.route => {
                 g.uncounted.push((e.source.clone(), "not intravenous, not part of the IV maximum"));
@@ -787,7 +820,13 @@ fn given_last_24h(rules: &RuleSet, facts: &Facts, reference: &Product) -> Given 
                 }
                 None => g.uncounted.push((e.source.clone(), "its product has no elemental calcium content")),
             },
-            None => g.uncounted.push((e.source.clone(), "its salt is not in the formulary")),
+            None => {
+                g.uncounted.push((e.source.clone(), "its salt is not known (not in the formulary)"));
+                g.unknown_salt.push((
+                    e.source.clone(),
+                    "the salt (gluconate or chloride) is not known from the record, and chloride carries about three times the calcium of gluconate per mg",
+                ));
+            }
         }
     }
     g
@@ -876,6 +915,7 @@ fn infusion(
             mitigation: "Lower the infusion rate or shorten it, check ionized calcium, and review with the treating clinician.".into(),
         });
     }
+    unknown_salt_issue(&already.unknown_salt, issues);
     Some(MedProposal {
         key: "calcium-infusion",
         title: "Continuous IV calcium gluconate (after the bolus)".into(),
@@ -936,6 +976,29 @@ fn fluid_load(rules: &RuleSet, ctx: &Context, w: &Weight, ml_h: f64, text: &mut 
             mitigation: "Count the calcium infusion within the day's total fluid prescription, or give the daily calcium as an additive to the maintenance fluid as neonatal units commonly do, per local protocol.".into(),
         });
     }
+}
+
+/// IV calcium given in the last 24 h that could not be counted (salt unknown, or
+/// no dose in mg): the daily-maximum count may be too low, so the check says so
+/// where the clinician looks.
+fn unknown_salt_issue(unknown: &[(Source, &'static str)], issues: &mut Vec<SafetyIssue>) {
+    if unknown.is_empty() {
+        return;
+    }
+    let why: Vec<String> = unknown.iter().map(|(s, r)| format!("{}: {r}", s.label())).collect();
+    issues.push(SafetyIssue {
+        key: "daily-maximum-incomplete",
+        act_code: Some(("DOSEH", "High Dose Alert")),
+        severity: IssueSeverity::Moderate,
+        title: "Daily maximum of IV calcium may be incomplete".into(),
+        detail: format!(
+            "{} calcium administration(s) in the last 24 h could not be counted toward the daily maximum, so what was already given may be more than shown: {}.",
+            unknown.len(),
+            why.join("; ")
+        ),
+        implicated: unknown.iter().map(|(s, _)| s.clone()).collect(),
+        mitigation: "Check what was given (salt, amount) on the administration record and add it to the count before starting the infusion.".into(),
+    });
 }
 
 fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
@@ -1447,6 +1510,92 @@ fn window_text(w: &RecencyWindow) -> String {
         format!("{} h", num_trim(w.hours))
     };
     format!("counted when running, active or recorded in the last {hours} ({})", w.source)
+}
+
+/// Say on each issue which of its medication records were identified by name
+/// (their text or display) rather than by a listed code.
+fn mark_name_matches(facts: &Facts, issues: &mut [SafetyIssue]) {
+    for i in issues.iter_mut() {
+        let named: Vec<String> = facts
+            .events
+            .iter()
+            .filter(|e| e.kind == EventKind::Medication && i.implicated.contains(&e.source))
+            .filter_map(|e| e.by_name.as_ref().map(|t| format!("{} identified by name '{t}'", e.source.label())))
+            .collect();
+        if !named.is_empty() {
+            i.detail.push_str(&format!(" Not by a listed code: {}.", named.join("; ")));
+        }
+    }
+}
+
+/// A medication record near the proposal that could not be identified: the
+/// interaction and line checks may be incomplete, said on the proposals.
+/// "Near": running or active, or recorded within `unidentified_medication_current`.
+fn unidentified_medications(rules: &RuleSet, facts: &Facts, plan: &mut TreatmentPlan) {
+    if plan.proposals.is_empty() {
+        return;
+    }
+    let w = &rules.treatment.safety.unidentified_medication_current;
+    let window_s = (w.hours * 3600.0).round() as i64;
+    let near: Vec<&crate::clinical::facts::OpenRecord> = facts
+        .unidentified_medications
+        .iter()
+        .filter(|m| m.in_progress || m.when.is_none_or(|t| facts.now - t.latest <= window_s))
+        .collect();
+    if near.is_empty() {
+        return;
+    }
+    let what: Vec<String> = near.iter().map(|m| format!("{} ({})", m.source.label(), m.description)).collect();
+    plan.issues.push(SafetyIssue {
+        key: "unidentified-medication",
+        act_code: Some(("DRG", "Drug Interaction Alert")),
+        severity: IssueSeverity::Moderate,
+        title: if near.len() == 1 {
+            "One active medication could not be identified".into()
+        } else {
+            format!("{} active medications could not be identified", near.len())
+        },
+        detail: format!(
+            "{} active medication(s) could not be identified: line-compatibility and interaction checks (ceftriaxone, sodium bicarbonate, phosphate, digoxin) and the IV calcium daily maximum may be incomplete. Not identified: {}. Near the proposal means {}.",
+            near.len(),
+            what.join("; "),
+            window_text(w)
+        ),
+        implicated: near.iter().map(|m| m.source.clone()).collect(),
+        mitigation: "Check the medication record by hand (name, line, time) before giving calcium; send its RxNorm code or name to have it checked.".into(),
+    });
+}
+
+/// A Condition or finding near the calcium result that could be a symptom but is
+/// in none of the lists: the symptom state is unknown, not "none", so an
+/// oral-only plan carries the caution that IV calcium may be needed.
+fn symptoms_unknown(rules: &RuleSet, facts: &Facts, finding: &CalciumFinding, plan: &mut TreatmentPlan) {
+    let oral_only = plan.proposals.iter().any(|p| p.route == Route::Oral && p.key.contains("calcium"))
+        && !plan.proposals.iter().any(|p| p.route == Route::Iv);
+    if !oral_only || finding.is_symptomatic() {
+        return;
+    }
+    // The records near the result, as the status found them (same window).
+    let near: Vec<&crate::clinical::facts::OpenRecord> =
+        facts.unclassified_findings.iter().filter(|c| finding.unclassified_near.contains(&c.source)).collect();
+    if near.is_empty() {
+        return;
+    }
+    let what: Vec<String> = near.iter().map(|c| format!("{} ({})", c.source.label(), c.description)).collect();
+    plan.issues.push(SafetyIssue {
+        key: "symptoms-unknown",
+        act_code: None,
+        severity: IssueSeverity::Moderate,
+        title: "Symptom state unknown: IV calcium may be needed if the child is symptomatic".into(),
+        detail: format!(
+            "Oral calcium is proposed because no symptom of hypocalcemia is recorded, but {} record(s) within {} h of the calcium result could not be classified and may be a symptom: {}.",
+            near.len(),
+            num_trim(rules.windows.symptom_window_hours),
+            what.join("; ")
+        ),
+        implicated: near.iter().map(|c| c.source.clone()).collect(),
+        mitigation: "Examine the child: with seizures, tetany, carpopedal spasm, laryngospasm, apnea or arrhythmia, give IV calcium instead of oral (local protocol).".into(),
+    });
 }
 
 /// Checks that apply whatever is proposed.
@@ -2657,6 +2806,168 @@ mod tests {
                 let ml: f64 = text.split(" mg = ").nth(1).and_then(|t| t.split(" mL").next()).and_then(|t| t.parse().ok()).expect("a volume");
                 prop_assert!((ml * per_ml - here).abs() <= 0.005 * per_ml + 0.05, "{ml} mL x {per_ml} mg/mL != {here} mg");
             }
+        }
+    }
+}
+
+/// Medication records identified by RxNorm or by name, unidentified ones, and an
+/// unknown symptom state (issue 13, sections 2 and 6).
+#[cfg(test)]
+mod record_tests {
+    use super::*;
+    use crate::clinical::facts::{Code, OpenRecord, Symptom};
+    use crate::clinical::status;
+    use crate::clinical::testing::*;
+    use crate::clinical::time::PartialDate;
+
+    fn seven() -> Option<PartialDate> {
+        born_days_ago(7 * 365 + 30)
+    }
+
+    fn weight(kg: f64) -> crate::clinical::facts::Measurement {
+        lab(Analyte::BodyWeight, kg, "kg", "wt")
+    }
+
+    /// A 7-year-old girl of 22 kg with ionized calcium `ica`, the events and open records.
+    fn plan_for(ica: f64, events: Vec<CodedEvent>, meds: Vec<OpenRecord>, findings: Vec<OpenRecord>) -> TreatmentPlan {
+        let r = rules();
+        let mut facts = facts_of(seven(), Gender::Female, vec![ionized(ica, 1, "ica"), weight(22.0)], events);
+        facts.unidentified_medications = meds;
+        facts.unclassified_findings = findings;
+        let a = status::assess(&facts, &r);
+        plan(&r, &facts, &a.finding.expect("finding"), None).expect("a plan")
+    }
+
+    fn open(hours_ago: i64, in_progress: bool, id: &str) -> OpenRecord {
+        OpenRecord {
+            when: Some(at(now() - hours_ago * HOUR)),
+            in_progress,
+            description: format!("urn:test|{id}"),
+            source: Source {
+                resource_type: "MedicationRequest".into(),
+                reference: Some(format!("X/{id}")),
+                expression: id.into(),
+            },
+        }
+    }
+
+    /// A completed IV calcium administration of `mg`, 3 h ago, with a code the
+    /// formulary products do not hold and the ingredient the code list gives.
+    fn given_rxnorm(ingredient: Option<&str>, mg: f64) -> CodedEvent {
+        let mut e = event(EventKind::Medication, "calcium_preparations", 3, "rx");
+        e.source.resource_type = "MedicationAdministration".into();
+        e.code = Code {
+            system: "http://www.nlm.nih.gov/research/umls/rxnorm".into(),
+            code: "1668250".into(),
+            display: "x".into(),
+        };
+        e.ingredient = ingredient.map(str::to_owned);
+        e.dose_mg = Some(mg);
+        e
+    }
+
+    fn keys(p: &TreatmentPlan) -> Vec<&'static str> {
+        p.issues.iter().map(|i| i.key).collect()
+    }
+
+    #[test]
+    fn an_unidentified_medication_near_the_proposal_is_a_warning_on_it() {
+        // Window 24 h (treatment.safety.unidentified_medication_current).
+        for (what, rec, fires) in [
+            ("an active order written 3 days ago", open(72, true, "a"), true),
+            ("a record 20 h ago", open(20, false, "b"), true),
+            ("a record 30 h ago, not running", open(30, false, "c"), false),
+        ] {
+            let p = plan_for(0.85, vec![], vec![rec], vec![]);
+            let issue = p.issues.iter().find(|i| i.key == "unidentified-medication");
+            assert_eq!(issue.is_some(), fires, "{what}: {:?}", keys(&p));
+            if let Some(i) = issue {
+                assert_eq!(i.severity, IssueSeverity::Moderate);
+                assert!(i.detail.contains("line-compatibility and interaction checks"), "{}", i.detail);
+            }
+        }
+    }
+
+    #[test]
+    fn calcium_coded_by_an_ingredient_finds_its_salt_for_the_daily_maximum() {
+        // 22 kg: infusion 8 mg/kg/h = 176 mg/h, 4224 mg over 24 h; maximum 13 x 24 x 22 = 6864 mg.
+        // 3000 mg gluconate: 4224 + 3000 = 7224 > 6864: fires.
+        let p = plan_for(0.85, vec![given_rxnorm(Some("calcium_gluconate"), 3000.0)], vec![], vec![]);
+        assert!(keys(&p).contains(&"daily-maximum"), "{:?}", keys(&p));
+        // 1000 mg chloride = 1000 x 27.3/100 = 273 mg calcium = 273 / (9.3/100) = 2935.48 mg
+        // gluconate equivalent; 4224 + 2935.48 = 7159.48 > 6864: fires, with the conversion shown.
+        let p = plan_for(0.85, vec![given_rxnorm(Some("calcium_chloride"), 1000.0)], vec![], vec![]);
+        let i = p.issues.iter().find(|i| i.key == "daily-maximum").expect("counted as chloride");
+        assert!(i.detail.contains("(2935.48 mg)"), "{}", i.detail);
+    }
+
+    #[test]
+    fn calcium_of_unknown_salt_makes_the_daily_maximum_a_warning() {
+        // No product holds the code and no ingredient is given: not counted (4224 < 6864, so
+        // the maximum itself stays silent) and the incomplete count is raised.
+        let p = plan_for(0.85, vec![given_rxnorm(None, 3000.0)], vec![], vec![]);
+        assert!(!keys(&p).contains(&"daily-maximum"), "{:?}", keys(&p));
+        let i = p.issues.iter().find(|i| i.key == "daily-maximum-incomplete").expect("raised");
+        assert_eq!(i.severity, IssueSeverity::Moderate);
+        assert_eq!(i.implicated.len(), 1);
+    }
+
+    #[test]
+    fn calcium_given_without_a_dose_in_mg_makes_the_daily_maximum_a_warning() {
+        let mut e = given_rxnorm(Some("calcium_gluconate"), 0.0);
+        e.dose_mg = None;
+        let p = plan_for(0.85, vec![e], vec![], vec![]);
+        let i = p.issues.iter().find(|i| i.key == "daily-maximum-incomplete").expect("raised");
+        assert!(i.detail.contains("not recorded in mg"), "{}", i.detail);
+    }
+
+    #[test]
+    fn a_name_match_is_said_on_the_check_it_raised() {
+        let mut e = event(EventKind::Medication, "sodium_bicarbonate", 1, "bic");
+        e.source.resource_type = "MedicationAdministration".into();
+        e.in_progress = true;
+        e.by_name = Some("Sodium Bicarbonate 4.2% infusion".into());
+        let p = plan_for(0.85, vec![e], vec![], vec![]);
+        let i = p.issues.iter().find(|i| i.key == "precipitation").expect("raised");
+        assert!(i.detail.contains("identified by name 'Sodium Bicarbonate 4.2% infusion'"), "{}", i.detail);
+    }
+
+    #[test]
+    fn an_unclassified_finding_makes_the_oral_proposal_carry_the_caution() {
+        // Ionized 1.05 (drawn 1 h ago): oral only. Symptom window 72 h (calcium.toml).
+        let p = plan_for(1.05, vec![], vec![], vec![open(2, false, "c")]);
+        assert!(p.proposals.iter().all(|x| x.route == Route::Oral));
+        assert!(keys(&p).contains(&"symptoms-unknown"), "{:?}", keys(&p));
+        // 100 h before the draw: outside the window, nothing said.
+        let p = plan_for(1.05, vec![], vec![], vec![open(101, false, "c")]);
+        assert!(!keys(&p).contains(&"symptoms-unknown"), "{:?}", keys(&p));
+        // No unclassified record: nothing said.
+        let p = plan_for(1.05, vec![], vec![], vec![]);
+        assert!(!keys(&p).contains(&"symptoms-unknown"));
+    }
+
+    #[test]
+    fn the_status_says_the_symptom_state_is_unknown() {
+        let r = rules();
+        let mut facts = facts_of(seven(), Gender::Female, vec![ionized(1.05, 1, "ica"), weight(22.0)], vec![]);
+        facts.unclassified_findings = vec![open(2, false, "near"), open(101, false, "far")];
+        let f = status::assess(&facts, &r).finding.expect("finding");
+        // 2 h ago is 1 h from the result (inside 72 h); 101 h ago is 100 h from it (outside).
+        assert_eq!(f.unclassified_near.iter().map(Source::label).collect::<Vec<_>>(), vec!["X/near"]);
+        assert!(!f.is_symptomatic(), "unknown is not symptomatic");
+    }
+
+    #[test]
+    fn new_symptoms_make_the_child_symptomatic() {
+        for s in [Symptom::Tetany, Symptom::Apnea, Symptom::Hypotension, Symptom::Cyanosis] {
+            let r = rules();
+            let mut facts = facts_of(seven(), Gender::Female, vec![ionized(1.05, 1, "ica"), weight(22.0)], vec![]);
+            let mut f = seizure(Some(2));
+            f.symptom = s;
+            facts.symptoms.push(f);
+            let a = status::assess(&facts, &r);
+            let p = plan(&r, &facts, &a.finding.expect("finding"), None).expect("a plan");
+            assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"), "{s:?}");
         }
     }
 }

@@ -84,6 +84,8 @@ struct Reader<'a> {
     prefix: String,
     set_aside: Vec<SetAside>,
     now: i64,
+    /// Finding Observations that could be a symptom but are in no list (read_events.rs).
+    unclassified_observations: Vec<crate::clinical::facts::OpenRecord>,
 }
 
 fn str_at<'v>(v: &'v Value, key: &str) -> Option<&'v str> {
@@ -215,7 +217,8 @@ pub fn read_value(
             ));
         }
     };
-    let mut reader = Reader { access, rules, profiles, prefix, set_aside: Vec::new(), now };
+    let mut reader =
+        Reader { access, rules, profiles, prefix, set_aside: Vec::new(), now, unclassified_observations: Vec::new() };
     let (facts, patient_reference) = reader.bundle(bundle)?;
     Ok(Ingested {
         facts,
@@ -357,6 +360,8 @@ impl<'a> Reader<'a> {
 
         let mut measurements = Vec::new();
         let mut symptoms = Vec::new();
+        let mut unidentified = Vec::new();
+        let mut unclassified = Vec::new();
         let mut events = Vec::new();
         let mut gestation = None;
         let mut birth_weight = None;
@@ -366,9 +371,9 @@ impl<'a> Reader<'a> {
             }
             match e.resource_type {
                 "Observation" => self.observation(e, &index, patient, &mut measurements, &mut symptoms),
-                "Condition" => self.condition(e, &index, patient, &mut symptoms, &mut events),
+                "Condition" => self.condition(e, &index, patient, &mut symptoms, &mut events, &mut unclassified),
                 "MedicationRequest" | "MedicationStatement" | "MedicationAdministration" => {
-                    self.medication(e, &index, patient, &entries, &mut events)
+                    self.medication(e, &index, patient, &entries, &mut events, &mut unidentified)
                 }
                 "Procedure" => self.procedure(e, &index, patient, &mut events),
                 "Medication" => self
@@ -394,6 +399,11 @@ impl<'a> Reader<'a> {
                 measurements,
                 symptoms,
                 events,
+                unidentified_medications: unidentified,
+                unclassified_findings: unclassified
+                    .into_iter()
+                    .chain(self.unclassified_observations.drain(..))
+                    .collect(),
                 vascular_access: self.access,
                 gestational_age_weeks: gestation,
                 birth_weight_kg: birth_weight,
@@ -617,7 +627,7 @@ impl<'a> Reader<'a> {
             .filter_map(|(k, c)| self.lab_code(c.get("code")).map(|code| (k, code)))
             .collect();
         if lab.is_none() && symptom.is_none() && component_codes.is_empty() {
-            self.ignore(e, format!("code {} is not one the rules read", describe_codes(r.get("code"))));
+            self.unclassified_observation(e, index, patient);
             return;
         }
         if !self.subject_ok(e, index, patient) {

@@ -155,12 +155,18 @@ pub fn treatment_output(
     }
     out.notes.extend(plan.notes.iter().cloned());
 
-    let implicated_proposals: Vec<Value> = plan
-        .proposals
-        .iter()
-        .filter(|p| p.route == Route::Iv)
-        .map(|p| json!({ "reference": urn(&format!("medication-{}", p.key)), "type": "MedicationRequest" }))
-        .collect();
+    let proposals_where = |f: &dyn Fn(&crate::clinical::treatment::MedProposal) -> bool| -> Vec<Value> {
+        plan.proposals
+            .iter()
+            .filter(|p| f(p))
+            .map(|p| json!({ "reference": urn(&format!("medication-{}", p.key)), "type": "MedicationRequest" }))
+            .collect()
+    };
+    let implicated_proposals = proposals_where(&|p| p.route == Route::Iv);
+    // The unknown-symptom caution is on the oral proposal; an unidentified
+    // medication may change the checks of every proposal.
+    let oral_proposals = proposals_where(&|p| p.route == Route::Oral);
+    let all_proposals = proposals_where(&|_| true);
     for issue in &plan.issues {
         let key = format!("safety-{}", issue.key);
         let mut code = json!({ "text": issue.title });
@@ -168,8 +174,11 @@ pub fn treatment_output(
             code["coding"] = json!([{ "system": ACT_CODE, "code": c, "display": display }]);
         }
         let mut implicated: Vec<Value> = issue.implicated.iter().map(reference).collect();
-        if issue.key != "weight" && issue.key != "overshoot" {
-            implicated.extend(implicated_proposals.iter().cloned());
+        match issue.key {
+            "weight" | "overshoot" => {}
+            "symptoms-unknown" => implicated.extend(oral_proposals.iter().cloned()),
+            "unidentified-medication" => implicated.extend(all_proposals.iter().cloned()),
+            _ => implicated.extend(implicated_proposals.iter().cloned()),
         }
         let mut di = json!({
             "resourceType": "DetectedIssue",

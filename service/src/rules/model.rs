@@ -239,6 +239,22 @@ pub struct ListedCode {
     /// Caution.
     #[serde(default)]
     pub note: Option<String>,
+    /// The formulary ingredient this code stands for (e.g. `calcium_gluconate`),
+    /// so a record coded only by ingredient still finds its salt.
+    #[serde(default)]
+    pub ingredient: Option<String>,
+}
+
+/// An ingredient name a medication record's text or coding display is matched
+/// against when none of its codes is listed (case-insensitive, whole words).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ListedName {
+    /// The name, e.g. "calcium gluconate".
+    pub name: String,
+    /// The formulary ingredient it stands for, when it names one salt.
+    #[serde(default)]
+    pub ingredient: Option<String>,
 }
 
 /// A named code list.
@@ -257,6 +273,9 @@ pub struct CodeList {
     pub any_status: bool,
     /// Codes.
     pub codes: Vec<ListedCode>,
+    /// Ingredient names for the fallback match by name (medication lists).
+    #[serde(default)]
+    pub names: Vec<ListedName>,
     /// Caution (e.g. why a list is empty).
     #[serde(default)]
     pub note: Option<String>,

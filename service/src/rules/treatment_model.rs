@@ -359,6 +359,9 @@ pub struct SafetyPolicy {
     pub ca_x_p_corrected_calcium: bool,
     /// Source of that choice.
     pub ca_x_p_corrected_source: String,
+    /// When a medication record the service cannot identify counts as near the
+    /// proposal (running or active, or recorded within the window).
+    pub unidentified_medication_current: RecencyWindow,
 }
 
 /// A medication counts as current for a safety check when it is running (an
