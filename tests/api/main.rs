@@ -57,3 +57,6 @@ mod workbench;
 
 // Preterm weight z (UK-WHO preterm table, rcpchgrowth check values) and the dosing-weight rules built on it (issue 13).
 mod reference_preterm;
+
+// Sources a clinician can follow: no output text cites memory, a brief or an internal file; every case answer is valid R4 (issue 13).
+mod output_text;

@@ -131,6 +131,7 @@ const SAFETY_CHECKS: &[(&str, &str, &str, Applies)] = &[
         "Does the calcium infusion take a large share of a neonate's daily fluid allowance?",
         Applies::WithIvCalcium,
     ),
+    (
         "daily-maximum-incomplete",
         "treatment.infusion, formulary products (salt of each administration)",
         "Was IV calcium given in 24 h whose salt is not known, so the daily-maximum count may be low?",
