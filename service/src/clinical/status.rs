@@ -7,7 +7,9 @@
 //! age band's interval and grades from the rule data.
 
 use super::bands::{self, BandChoice, NoBand};
-use super::facts::{Analyte, Facts, Measurement, ResultStatus, Source, SymptomFinding};
+use super::facts::{
+    Analyte, Facts, Measurement, ResultStatus, Source, SpecimenAction, SpecimenFinding, SymptomFinding,
+};
 use super::format::{num, value_with_mg_dl};
 use super::time::When;
 use crate::rules::model::{AgeBand, Interval, IssueSeverity, RuleSet};
@@ -153,6 +155,9 @@ pub struct CalciumFinding {
     pub when: When,
     /// Some input was preliminary.
     pub preliminary: bool,
+    /// Specimen problems of the calcium (and albumin) used, or of a calcium
+    /// result set aside for one: said on every IV calcium proposal.
+    pub specimen_cautions: Vec<String>,
 }
 
 impl CalciumFinding {
@@ -230,6 +235,8 @@ pub struct Assessment {
     pub unused: Vec<Unused>,
     /// A usable Patient.birthDate is needed.
     pub needs_birth_date: bool,
+    /// Specimen problems found on the results read (used or set aside).
+    pub specimen: Vec<SpecimenFinding>,
 }
 
 struct Ctx<'a> {
@@ -240,6 +247,7 @@ struct Ctx<'a> {
     needs: Vec<DataNeed>,
     unused: Vec<Unused>,
     needs_birth_date: bool,
+    specimen_cautions: Vec<String>,
 }
 
 impl Ctx<'_> {
@@ -286,7 +294,9 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         needs: Vec::new(),
         unused: Vec::new(),
         needs_birth_date: false,
+        specimen_cautions: Vec::new(),
     };
+    specimen_set_aside(&mut ctx);
     let ionized = fresh(&mut ctx, Analyte::CalciumIonized);
     let totals = fresh(&mut ctx, Analyte::CalciumTotal);
     let albumins = fresh(&mut ctx, Analyte::Albumin);
@@ -517,6 +527,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         effective_text: calcium.when_text.clone(),
         when: calcium.when,
         preliminary,
+        specimen_cautions: Vec::new(),
     };
     if finding.is_low() {
         let base = finding.grade.as_ref().map_or(rules.severity.below_interval, |g| g.severity);
@@ -573,6 +584,10 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
             ctx.need(Analyte::CalciumIonized, "A measured ionized calcium is the preferred test.");
         }
     }
+    if specimen_used(&mut ctx, measure, calcium, albumin) && status == GuidanceStatus::Success {
+        status = GuidanceStatus::DataRequested;
+    }
+    finding.specimen_cautions = ctx.specimen_cautions.clone();
     let derived = derived.map(|(mut d, _)| {
         let (c, g) = judge(d.value_mmol_l, &band.adjusted);
         d.classification = c;
@@ -615,7 +630,66 @@ fn finish(
         cautions: ctx.cautions,
         unused: ctx.unused,
         needs_birth_date: ctx.needs_birth_date,
+        specimen: ctx.facts.specimen.clone(),
     }
+}
+
+/// The calcium analytes the status rests on.
+fn is_calcium_input(a: Analyte) -> bool {
+    matches!(a, Analyte::CalciumIonized | Analyte::CalciumTotal | Analyte::CalciumAlbuminAdjusted | Analyte::Albumin)
+}
+
+/// Calcium results the reader set aside for a specimen problem: said as a
+/// caution, and an ionized calcium is asked for again.
+fn specimen_set_aside(ctx: &mut Ctx<'_>) {
+    let facts = ctx.facts;
+    for f in facts.specimen.iter().filter(|f| f.action == SpecimenAction::SetAside && is_calcium_input(f.analyte)) {
+        let text = format!(
+            "{} ({}) was set aside: the specimen is {} ({}; {}). {}",
+            f.result_text,
+            f.result.label(),
+            f.label,
+            f.found,
+            f.read_from.label(),
+            f.effect
+        );
+        ctx.cautions.push(text.clone());
+        ctx.specimen_cautions.push(text);
+        if f.analyte == Analyte::CalciumIonized {
+            ctx.need(
+                Analyte::CalciumIonized,
+                format!("The ionized calcium from a {} specimen was set aside; repeat it on a sound sample.", f.label),
+            );
+        }
+    }
+}
+
+/// Specimen problems of the results the status rests on; true when there is one.
+fn specimen_used(ctx: &mut Ctx<'_>, measure: Measure, calcium: &Measurement, albumin: Option<&Measurement>) -> bool {
+    let facts = ctx.facts;
+    let mut any = false;
+    for (m, what) in
+        std::iter::once((calcium, measure_input_label(measure))).chain(albumin.map(|a| (a, "albumin")))
+    {
+        for f in facts.specimen_of(m) {
+            let text = match f.action {
+                SpecimenAction::NoEffect | SpecimenAction::SetAside => continue,
+                SpecimenAction::Unread => format!("The {what} used ({}): {}", f.result.label(), f.effect),
+                SpecimenAction::Caution => format!(
+                    "The {what} used ({}) is from a specimen {} ({}; {}). {}",
+                    f.result.label(),
+                    f.label,
+                    f.found,
+                    f.read_from.label(),
+                    f.effect
+                ),
+            };
+            any = true;
+            ctx.cautions.push(text.clone());
+            ctx.specimen_cautions.push(text);
+        }
+    }
+    any
 }
 
 fn describe_input(measure: Measure, m: &Measurement) -> String {

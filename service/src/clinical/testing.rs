@@ -89,6 +89,7 @@ pub fn facts(birth: Option<PartialDate>, measurements: Vec<Measurement>) -> Fact
         vascular_access: Default::default(),
         gestational_age_weeks: None,
         now: now(),
+        specimen: Vec::new(),
     }
 }
 

@@ -13,7 +13,8 @@ use super::datetime::{self, DateError};
 use super::outcome::{Issue, IssueCode, IssueSeverityLevel, RequestError};
 use super::profiles::{Kind, Profiles};
 use crate::clinical::facts::{
-    Analyte, Code, Facts, Gender, Measurement, PatientFacts, ResultStatus, Source, SymptomFinding,
+    Analyte, Code, Facts, Gender, Measurement, PatientFacts, ResultStatus, Source, SpecimenAction, SpecimenFinding,
+    SpecimenReadFrom, SymptomFinding,
 };
 use crate::clinical::format::num;
 use crate::clinical::time::When;
@@ -22,6 +23,8 @@ use crate::rules::model::{ObservationCode, RuleSet, SymptomCode};
 
 #[path = "read_events.rs"]
 mod events;
+#[path = "read_specimen.rs"]
+mod specimen;
 
 /// The UCUM system URI.
 pub const UCUM: &str = "http://unitsofmeasure.org";
@@ -359,12 +362,15 @@ impl<'a> Reader<'a> {
         let mut symptoms = Vec::new();
         let mut events = Vec::new();
         let mut gestation = None;
+        let mut specimen = Vec::new();
         for e in &entries {
             if e.index == patient_index {
                 continue;
             }
             match e.resource_type {
-                "Observation" => self.observation(e, &index, patient, &mut measurements, &mut symptoms),
+                "Observation" => {
+                    self.observation(e, &index, patient, &entries, &mut measurements, &mut symptoms, &mut specimen)
+                }
                 "Condition" => self.condition(e, &index, patient, &mut symptoms, &mut events),
                 "MedicationRequest" | "MedicationStatement" | "MedicationAdministration" => {
                     self.medication(e, &index, patient, &entries, &mut events)
@@ -372,6 +378,7 @@ impl<'a> Reader<'a> {
                 "Procedure" => self.procedure(e, &index, patient, &mut events),
                 "Medication" => self
                     .ignore(e, "Medication resources are read only through the medication records that refer to them"),
+                "Specimen" => self.ignore(e, "Specimen resources are read only through the results that refer to them"),
                 other => self.ignore(e, format!("resource type {other} is not read by this version of the rules")),
             }
         }
@@ -393,6 +400,7 @@ impl<'a> Reader<'a> {
                 vascular_access: self.access,
                 gestational_age_weeks: gestation,
                 now: self.now,
+                specimen,
             },
             patient_reference,
         ))
@@ -578,13 +586,16 @@ impl<'a> Reader<'a> {
         true
     }
 
+    #[allow(clippy::too_many_arguments, reason = "the bundle walk's accumulators, one per kind of fact")]
     fn observation(
         &mut self,
         e: &Entry<'_>,
         index: &Index<'_>,
         patient: &Entry<'_>,
+        entries: &[Entry<'_>],
         measurements: &mut Vec<Measurement>,
         symptoms: &mut Vec<SymptomFinding>,
+        specimen: &mut Vec<SpecimenFinding>,
     ) {
         if !self.common_checks(e, Kind::Observation) {
             return;
@@ -633,14 +644,25 @@ impl<'a> Reader<'a> {
             }
             return;
         }
+        let mut found = Vec::new();
         if let Some(code) = lab
             && let Some(m) = self.quantity(e, "", r, code, status, when, &when_text)
         {
-            measurements.push(m);
+            found.push(m);
         }
         for (k, code) in component_codes {
             let Some(comp) = components.get(k) else { continue };
             if let Some(m) = self.quantity(e, &format!(".component[{k}]"), comp, code, status, when, &when_text) {
+                found.push(m);
+            }
+        }
+        if found.is_empty() {
+            return;
+        }
+        // The specimen check: Specimen.condition, the result's own flags, notes.
+        let flags = self.specimen_flags(e, index, entries);
+        for m in found {
+            if self.specimen_check(e, &m, &flags, specimen) {
                 measurements.push(m);
             }
         }

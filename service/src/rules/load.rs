@@ -22,6 +22,7 @@ pub const DEFAULT_FILES: &[(&str, &str)] = &[
     ("formulary.toml", include_str!("../../rules/formulary.toml")),
     ("growth.toml", include_str!("../../rules/growth.toml")),
     ("treatment.toml", include_str!("../../rules/treatment.toml")),
+    ("specimen.toml", include_str!("../../rules/specimen.toml")),
 ];
 
 /// The JSON Schema every merged rule document must pass.
