@@ -1084,6 +1084,65 @@ mod tests {
         assert!(a.cautions.iter().any(|c| c.contains("preliminary")));
     }
 
+    #[test]
+    fn a_clotted_ionized_calcium_set_aside_falls_back_to_the_adjusted_total_with_the_reason_stated() {
+        use crate::clinical::facts::SpecimenAction;
+        // The reader left the clotted ionized 0.78 out of the measurements and recorded why.
+        let clotted = ionized(0.78, 1, "ica");
+        let mut f = facts(child(), vec![total_mg(7.0, 1, "tca"), albumin_g_dl(4.0, 1, "alb")]);
+        f.specimen.push(specimen_finding(&clotted, "clotted", SpecimenAction::SetAside));
+        let a = assess(&f, &rules());
+        let finding = a.finding.unwrap();
+        // 7.0 + 0.8 x (4.0 - 4.0) = 7.0 mg/dL = 1.747 mmol/L, below the child adjusted limit 2.20.
+        assert_eq!(finding.measure, Measure::AlbuminAdjusted);
+        assert!(close(finding.value_mmol_l, 7.0 * 10.0 / 40.078, 1e-9));
+        assert!(a.cautions.iter().any(|c| c.contains("was set aside: the specimen is clotted")), "{:?}", a.cautions);
+        assert_eq!(finding.specimen_cautions.len(), 1, "said on the IV proposals");
+        let need = a.data_needs.iter().find(|n| n.analyte == Analyte::CalciumIonized).unwrap();
+        assert!(need.reason.contains("clotted specimen was set aside"), "{}", need.reason);
+        assert_eq!(a.specimen.len(), 1, "carried to the writer and the trace");
+
+        // Nothing else: no status, still said.
+        let mut f = facts(child(), vec![]);
+        f.specimen.push(specimen_finding(&clotted, "clotted", SpecimenAction::SetAside));
+        let a = assess(&f, &rules());
+        assert!(a.finding.is_none());
+        assert_eq!(a.status, GuidanceStatus::DataRequired);
+        assert!(a.cautions.iter().any(|c| c.contains("clotted")));
+    }
+
+    #[test]
+    fn a_caution_on_the_calcium_used_is_stated_and_asks_for_a_repeat() {
+        use crate::clinical::facts::SpecimenAction;
+        let ica = ionized(0.85, 1, "ica");
+        let mut f = facts(child(), vec![ica.clone()]);
+        f.specimen.push(specimen_finding(&ica, "hemolyzed", SpecimenAction::Caution));
+        let a = assess(&f, &rules());
+        let finding = a.finding.unwrap();
+        assert_eq!(finding.measure, Measure::Ionized);
+        assert!(finding.is_low());
+        assert_eq!(a.status, GuidanceStatus::DataRequested, "success without the specimen problem");
+        assert!(a.cautions.iter().any(|c| c.contains("is from a specimen hemolyzed")), "{:?}", a.cautions);
+        assert_eq!(finding.specimen_cautions.len(), 1);
+
+        // The check could not run: also stated.
+        let mut f = facts(child(), vec![ica.clone()]);
+        f.specimen.push(specimen_finding(&ica, "unread", SpecimenAction::Unread));
+        let a = assess(&f, &rules());
+        assert_eq!(a.status, GuidanceStatus::DataRequested);
+        assert!(a.cautions.iter().any(|c| c.contains("effect of unread")));
+
+        // A handling state, or a problem on another result: no caution on the status.
+        let mg = m(Analyte::Magnesium, 0.8, "mmol/L", (0.8, "mmol/L"), 1, "mg");
+        let mut f = facts(child(), vec![ica.clone(), mg.clone()]);
+        f.specimen.push(specimen_finding(&ica, "room-temperature", SpecimenAction::NoEffect));
+        f.specimen.push(specimen_finding(&mg, "hemolyzed", SpecimenAction::Caution));
+        let a = assess(&f, &rules());
+        assert_eq!(a.status, GuidanceStatus::Success);
+        assert!(a.finding.unwrap().specimen_cautions.is_empty());
+        assert_eq!(a.specimen.len(), 2, "both are still carried to the writer");
+    }
+
     mod properties {
         use proptest::prelude::*;
 

@@ -317,3 +317,149 @@ impl<'a> Reader<'a> {
         keep
     }
 }
+
+#[cfg(test)]
+mod tests {
+    #![allow(clippy::unwrap_used, reason = "tests")]
+
+    use serde_json::{Value, json};
+
+    use super::super::{Ingested, read_value};
+    use crate::clinical::facts::{Analyte, SpecimenAction, SpecimenReadFrom};
+    use crate::clinical::testing::{now, shared_rules};
+    use crate::fhir::outcome::IssueSeverityLevel;
+    use crate::fhir::profiles::Profiles;
+
+    const V2: &str = "http://terminology.hl7.org/CodeSystem/v2-0493";
+
+    fn ionized(extra: Value) -> Value {
+        let mut o = json!({
+            "resourceType": "Observation", "id": "ica", "status": "final",
+            "code": { "coding": [{ "system": "http://loinc.org", "code": "1994-3" }] },
+            "subject": { "reference": "Patient/p" },
+            "effectiveDateTime": "2026-11-30T14:00:00Z",
+            "valueQuantity": { "value": 0.80, "unit": "mmol/L", "system": "http://unitsofmeasure.org", "code": "mmol/L" },
+        });
+        for (k, v) in extra.as_object().unwrap() {
+            o[k] = v.clone();
+        }
+        o
+    }
+
+    fn total(extra: Value) -> Value {
+        let mut o = ionized(extra);
+        o["id"] = json!("tca");
+        o["code"] = json!({ "coding": [{ "system": "http://loinc.org", "code": "2000-8" }] });
+        o["valueQuantity"]["value"] = json!(1.9);
+        o
+    }
+
+    fn spec(id: &str, code: &str) -> Value {
+        json!({ "resourceType": "Specimen", "id": id, "condition": [{ "coding": [{ "system": V2, "code": code }] }] })
+    }
+
+    fn read(resources: &[Value]) -> Ingested {
+        let mut entries = vec![json!({ "resource": { "resourceType": "Patient", "id": "p", "birthDate": "2019-03-04" } })];
+        entries.extend(resources.iter().map(|r| json!({ "resource": r })));
+        let bundle = json!({ "resourceType": "Bundle", "type": "collection", "entry": entries });
+        let profiles = Profiles::compile().unwrap();
+        read_value(&bundle, shared_rules(), &profiles, now(), true).unwrap()
+    }
+
+    #[test]
+    fn a_clotted_contained_specimen_sets_the_ionized_calcium_aside_with_a_located_warning() {
+        let c = spec("s", "CLOT");
+        let got = read(&[ionized(json!({ "contained": [c], "specimen": { "reference": "#s" } }))]);
+        assert!(got.facts.of(Analyte::CalciumIonized).is_empty(), "set aside");
+        let f = &got.facts.specimen;
+        assert_eq!(f.len(), 1);
+        assert_eq!((f[0].key.as_str(), f[0].action, f[0].read_from), ("clotted", SpecimenAction::SetAside, SpecimenReadFrom::Condition));
+        assert_eq!(f[0].specimen.as_ref().unwrap().expression, "Bundle.entry[1].resource.contained[0]");
+        let w = got.set_aside.iter().find(|s| s.severity == IssueSeverityLevel::Warning).unwrap();
+        assert_eq!(w.expression, "Bundle.entry[1].resource.contained[0].condition[0]");
+        assert!(w.reason.contains("clotted"), "{}", w.reason);
+    }
+
+    #[test]
+    fn clotted_sets_aside_only_the_ionized_calcium_and_hemolyzed_sets_aside_nothing() {
+        // One clotted Specimen shared by an ionized and a total calcium (a Bundle entry, by Type/id).
+        let got = read(&[
+            ionized(json!({ "specimen": { "reference": "Specimen/s1" } })),
+            total(json!({ "specimen": { "reference": "Specimen/s1" } })),
+            spec("s1", "CLOT"),
+        ]);
+        assert!(got.facts.of(Analyte::CalciumIonized).is_empty());
+        assert_eq!(got.facts.of(Analyte::CalciumTotal).len(), 1, "a total calcium from it is used");
+        let actions: Vec<(Analyte, SpecimenAction)> = got.facts.specimen.iter().map(|f| (f.analyte, f.action)).collect();
+        assert_eq!(
+            actions,
+            [(Analyte::CalciumIonized, SpecimenAction::SetAside), (Analyte::CalciumTotal, SpecimenAction::Caution)]
+        );
+        assert_eq!(got.facts.specimen[0].specimen.as_ref().unwrap().reference.as_deref(), Some("Specimen/s1"));
+
+        let got = read(&[ionized(json!({ "specimen": { "reference": "Specimen/s2" } })), spec("s2", "HEM")]);
+        assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1, "hemolyzed: used");
+        assert_eq!(got.facts.specimen[0].action, SpecimenAction::Caution);
+        assert_eq!(got.facts.specimen[0].key, "hemolyzed");
+        assert!(got.set_aside.iter().all(|s| s.severity != IssueSeverityLevel::Warning), "{:?}", got.set_aside);
+    }
+
+    #[test]
+    fn a_specimen_that_cannot_be_read_is_a_finding_and_a_warning_but_the_result_is_used() {
+        for reference in ["Specimen/absent", "#nothing", "https://elsewhere.example.com/Specimen/x"] {
+            let got = read(&[ionized(json!({ "specimen": { "reference": reference } }))]);
+            assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1, "{reference}");
+            let f = &got.facts.specimen[0];
+            assert_eq!((f.key.as_str(), f.action), ("unread", SpecimenAction::Unread), "{reference}");
+            assert!(f.effect.contains("did not run"), "{}", f.effect);
+            let w = got.set_aside.iter().find(|s| s.expression.ends_with(".specimen")).unwrap();
+            assert_eq!(w.severity, IssueSeverityLevel::Warning);
+        }
+        // A specimen named by identifier only cannot be read either.
+        let got = read(&[ionized(json!({ "specimen": { "identifier": { "system": "urn:x", "value": "1" } } }))]);
+        assert_eq!(got.facts.specimen[0].action, SpecimenAction::Unread);
+    }
+
+    #[test]
+    fn words_in_a_note_give_a_caution_only_and_a_coded_flag_wins_over_the_same_words() {
+        let got = read(&[ionized(json!({ "note": [{ "text": "Specimen HAEMOLYSED, analysed as received" }] }))]);
+        assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1);
+        let f = &got.facts.specimen[0];
+        assert_eq!((f.key.as_str(), f.action, f.read_from), ("hemolyzed", SpecimenAction::Caution, SpecimenReadFrom::NoteText));
+        assert!(f.found.contains("HAEMOLYSED"), "the words are quoted: {}", f.found);
+        // "clot" in a note never sets the ionized calcium aside.
+        let got = read(&[ionized(json!({ "note": [{ "text": "no clots seen" }] }))]);
+        assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1);
+        assert_eq!(got.facts.specimen[0].action, SpecimenAction::Caution);
+        // Coded and written: one finding, the coded one.
+        let got = read(&[
+            ionized(json!({ "specimen": { "reference": "Specimen/s" }, "note": [{ "text": "hemolyzed" }] })),
+            spec("s", "HEM"),
+        ]);
+        assert_eq!(got.facts.specimen.len(), 1);
+        assert_eq!(got.facts.specimen[0].read_from, SpecimenReadFrom::Condition);
+    }
+
+    #[test]
+    fn quality_control_failure_sets_any_result_aside_and_handling_states_have_no_effect() {
+        let qcf = json!({ "interpretation": [{ "coding": [{ "system": "http://terminology.hl7.org/CodeSystem/v3-ObservationInterpretation", "code": "QCF" }] }] });
+        let got = read(&[total(qcf)]);
+        assert!(got.facts.of(Analyte::CalciumTotal).is_empty());
+        assert_eq!(got.facts.specimen[0].read_from, SpecimenReadFrom::Interpretation);
+        let got = read(&[ionized(json!({ "specimen": { "reference": "Specimen/s" } })), spec("s", "ROOM")]);
+        assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1);
+        assert_eq!(got.facts.specimen[0].action, SpecimenAction::NoEffect);
+        assert!(got.facts.specimen[0].severity.is_none());
+    }
+
+    #[test]
+    fn a_condition_the_rules_do_not_know_is_shown_with_a_caution() {
+        let mut s = spec("s", "XYZ");
+        s["condition"][0]["coding"][0]["system"] = json!("urn:local:lab");
+        let got = read(&[ionized(json!({ "specimen": { "reference": "Specimen/s" } })), s]);
+        assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1);
+        let f = &got.facts.specimen[0];
+        assert_eq!((f.key.as_str(), f.action), ("other-condition", SpecimenAction::Caution));
+        assert!(f.effect.contains("urn:local:lab|XYZ"), "{}", f.effect);
+    }
+}
