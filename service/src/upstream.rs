@@ -472,9 +472,8 @@ fn specimen_ids(entries: &[Value], base: &str) -> Vec<String> {
         };
         let local = reference.strip_prefix(base).and_then(|x| x.strip_prefix('/')).unwrap_or(reference);
         let Some(id) = local.strip_prefix("Specimen/") else { continue };
-        let id_ok = !id.is_empty()
-            && id.len() <= 64
-            && id.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'-' || b == b'.');
+        let id_ok =
+            !id.is_empty() && id.len() <= 64 && id.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'-' || b == b'.');
         if id_ok && !have.contains(&id) && !ids.iter().any(|x| x == id) {
             ids.push(id.to_owned());
         }

@@ -184,7 +184,10 @@ async fn a_failed_specimen_search_says_the_specimen_check_could_not_run() {
     observation_search().respond_with(fhir(200, &searchset(&uri, &labs, None))).mount(&server).await;
     Mock::given(method("GET"))
         .and(path("/Specimen"))
-        .respond_with(fhir(404, &json!({ "resourceType": "OperationOutcome", "issue": [{ "severity": "error", "code": "not-found" }] })))
+        .respond_with(fhir(
+            404,
+            &json!({ "resourceType": "OperationOutcome", "issue": [{ "severity": "error", "code": "not-found" }] }),
+        ))
         .mount(&server)
         .await;
     let app = spawn_app_with_upstream_args(args(&server)).await;
@@ -209,7 +212,12 @@ async fn a_specimen_on_another_server_is_never_fetched() {
     let foreign = format!("{}/Specimen/sp-9", elsewhere.uri());
     let labs = [with_specimen(ionized_calcium("ica-1", 0.85), &foreign), weight("wt-1", 20.0)];
     observation_search().respond_with(fhir(200, &searchset(&uri, &labs, None))).mount(&server).await;
-    Mock::given(method("GET")).and(path("/Specimen")).respond_with(fhir(200, &json!({}))).expect(0).mount(&server).await;
+    Mock::given(method("GET"))
+        .and(path("/Specimen"))
+        .respond_with(fhir(200, &json!({})))
+        .expect(0)
+        .mount(&server)
+        .await;
     let app = spawn_app_with_upstream_args(args(&server)).await;
 
     let (status, bundle) = post_patient(&app, PATIENT_ID).await;

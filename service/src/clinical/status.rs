@@ -668,9 +668,7 @@ fn specimen_set_aside(ctx: &mut Ctx<'_>) {
 fn specimen_used(ctx: &mut Ctx<'_>, measure: Measure, calcium: &Measurement, albumin: Option<&Measurement>) -> bool {
     let facts = ctx.facts;
     let mut any = false;
-    for (m, what) in
-        std::iter::once((calcium, measure_input_label(measure))).chain(albumin.map(|a| (a, "albumin")))
-    {
+    for (m, what) in std::iter::once((calcium, measure_input_label(measure))).chain(albumin.map(|a| (a, "albumin"))) {
         for f in facts.specimen_of(m) {
             let text = match f.action {
                 SpecimenAction::NoEffect | SpecimenAction::SetAside => continue,

@@ -163,7 +163,11 @@ pub fn facts_of(
 
 /// A specimen problem on `m` as the reader records it (`action` SetAside: `m` is
 /// left out of the facts by the caller).
-pub fn specimen_finding(m: &Measurement, key: &str, action: crate::clinical::facts::SpecimenAction) -> crate::clinical::facts::SpecimenFinding {
+pub fn specimen_finding(
+    m: &Measurement,
+    key: &str,
+    action: crate::clinical::facts::SpecimenAction,
+) -> crate::clinical::facts::SpecimenFinding {
     crate::clinical::facts::SpecimenFinding {
         key: key.into(),
         label: key.into(),

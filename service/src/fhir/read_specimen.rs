@@ -13,9 +13,7 @@
 
 use serde_json::Value;
 
-use super::{
-    Entry, Index, Reader, SpecimenAction, SpecimenFinding, SpecimenReadFrom, codings, describe_codes, str_at,
-};
+use super::{Entry, Index, Reader, SpecimenAction, SpecimenFinding, SpecimenReadFrom, codings, describe_codes, str_at};
 use crate::clinical::facts::{Measurement, Source};
 use crate::clinical::format::num;
 use crate::rules::model::SpecimenFlag;
@@ -43,7 +41,12 @@ fn quote(text: &str) -> String {
 }
 
 fn notes(v: &Value) -> impl Iterator<Item = (usize, &str)> {
-    v.get("note").and_then(Value::as_array).into_iter().flatten().enumerate().filter_map(|(i, n)| Some((i, str_at(n, "text")?)))
+    v.get("note")
+        .and_then(Value::as_array)
+        .into_iter()
+        .flatten()
+        .enumerate()
+        .filter_map(|(i, n)| Some((i, str_at(n, "text")?)))
 }
 
 impl<'a> Reader<'a> {
@@ -54,16 +57,16 @@ impl<'a> Reader<'a> {
     /// Flags whose text stems occur in `text` (lower-cased).
     fn text_flags(&self, text: &str) -> Vec<&'a SpecimenFlag> {
         let lower = text.to_lowercase();
-        self.rules
-            .specimen
-            .flags
-            .iter()
-            .filter(|f| f.text_terms.iter().any(|t| lower.contains(t.as_str())))
-            .collect()
+        self.rules.specimen.flags.iter().filter(|f| f.text_terms.iter().any(|t| lower.contains(t.as_str()))).collect()
     }
 
     /// Every specimen problem of one Observation.
-    pub(super) fn specimen_flags(&mut self, e: &Entry<'_>, index: &Index<'_>, entries: &[Entry<'_>]) -> Vec<RawFlag<'a>> {
+    pub(super) fn specimen_flags(
+        &mut self,
+        e: &Entry<'_>,
+        index: &Index<'_>,
+        entries: &[Entry<'_>],
+    ) -> Vec<RawFlag<'a>> {
         let r = e.resource;
         let at = self.at(e.index);
         let mut out = Vec::new();
@@ -144,11 +147,16 @@ impl<'a> Reader<'a> {
             );
         };
         if let Some(local) = text.strip_prefix('#') {
-            let contained = e.resource.get("contained").and_then(Value::as_array).map(Vec::as_slice).unwrap_or_default();
+            let contained =
+                e.resource.get("contained").and_then(Value::as_array).map(Vec::as_slice).unwrap_or_default();
             return match contained.iter().enumerate().find(|(_, c)| str_at(c, "id") == Some(local)) {
                 Some((k, c)) if str_at(c, "resourceType") == Some("Specimen") => {
                     let path = format!("{}.contained[{k}]", self.at(e.index));
-                    Ok((c, Source { resource_type: "Specimen".into(), reference: None, expression: path.clone() }, path))
+                    Ok((
+                        c,
+                        Source { resource_type: "Specimen".into(), reference: None, expression: path.clone() },
+                        path,
+                    ))
                 }
                 Some(_) => Err(format!("Observation.specimen '{text}' is a contained resource that is not a Specimen")),
                 None => Err(format!("Observation.specimen '{text}' does not resolve to a contained resource")),
@@ -231,7 +239,8 @@ impl<'a> Reader<'a> {
         flags: &[RawFlag<'a>],
         findings: &mut Vec<SpecimenFinding>,
     ) -> bool {
-        let result_text = format!("{} {} {} at {}", m.code.display, num(m.reported_value, 2), m.reported_unit, m.when_text);
+        let result_text =
+            format!("{} {} {} at {}", m.code.display, num(m.reported_value, 2), m.reported_unit, m.when_text);
         let spec = &self.rules.specimen;
         let mut keep = true;
         for raw in flags {
@@ -287,7 +296,12 @@ impl<'a> Reader<'a> {
                 self.aside(
                     e,
                     raw.path.strip_prefix(at.as_str()).unwrap_or(".specimen"),
-                    format!("{}: the specimen is {label} ({}; {}): {effect}", m.code.display, raw.found, raw.read_from.label()),
+                    format!(
+                        "{}: the specimen is {label} ({}; {}): {effect}",
+                        m.code.display,
+                        raw.found,
+                        raw.read_from.label()
+                    ),
                 );
             } else if action == SpecimenAction::Unread {
                 self.push(
@@ -359,7 +373,8 @@ mod tests {
     }
 
     fn read(resources: &[Value]) -> Ingested {
-        let mut entries = vec![json!({ "resource": { "resourceType": "Patient", "id": "p", "birthDate": "2019-03-04" } })];
+        let mut entries =
+            vec![json!({ "resource": { "resourceType": "Patient", "id": "p", "birthDate": "2019-03-04" } })];
         entries.extend(resources.iter().map(|r| json!({ "resource": r })));
         let bundle = json!({ "resourceType": "Bundle", "type": "collection", "entry": entries });
         let profiles = Profiles::compile().unwrap();
@@ -373,7 +388,10 @@ mod tests {
         assert!(got.facts.of(Analyte::CalciumIonized).is_empty(), "set aside");
         let f = &got.facts.specimen;
         assert_eq!(f.len(), 1);
-        assert_eq!((f[0].key.as_str(), f[0].action, f[0].read_from), ("clotted", SpecimenAction::SetAside, SpecimenReadFrom::Condition));
+        assert_eq!(
+            (f[0].key.as_str(), f[0].action, f[0].read_from),
+            ("clotted", SpecimenAction::SetAside, SpecimenReadFrom::Condition)
+        );
         assert_eq!(f[0].specimen.as_ref().unwrap().expression, "Bundle.entry[1].resource.contained[0]");
         let w = got.set_aside.iter().find(|s| s.severity == IssueSeverityLevel::Warning).unwrap();
         assert_eq!(w.expression, "Bundle.entry[1].resource.contained[0].condition[0]");
@@ -390,7 +408,8 @@ mod tests {
         ]);
         assert!(got.facts.of(Analyte::CalciumIonized).is_empty());
         assert_eq!(got.facts.of(Analyte::CalciumTotal).len(), 1, "a total calcium from it is used");
-        let actions: Vec<(Analyte, SpecimenAction)> = got.facts.specimen.iter().map(|f| (f.analyte, f.action)).collect();
+        let actions: Vec<(Analyte, SpecimenAction)> =
+            got.facts.specimen.iter().map(|f| (f.analyte, f.action)).collect();
         assert_eq!(
             actions,
             [(Analyte::CalciumIonized, SpecimenAction::SetAside), (Analyte::CalciumTotal, SpecimenAction::Caution)]
@@ -425,7 +444,10 @@ mod tests {
         let got = read(&[ionized(json!({ "note": [{ "text": "Specimen HAEMOLYSED, analysed as received" }] }))]);
         assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1);
         let f = &got.facts.specimen[0];
-        assert_eq!((f.key.as_str(), f.action, f.read_from), ("hemolyzed", SpecimenAction::Caution, SpecimenReadFrom::NoteText));
+        assert_eq!(
+            (f.key.as_str(), f.action, f.read_from),
+            ("hemolyzed", SpecimenAction::Caution, SpecimenReadFrom::NoteText)
+        );
         assert!(f.found.contains("HAEMOLYSED"), "the words are quoted: {}", f.found);
         // "clot" in a note never sets the ionized calcium aside.
         let got = read(&[ionized(json!({ "note": [{ "text": "no clots seen" }] }))]);
