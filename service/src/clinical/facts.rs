@@ -295,6 +295,8 @@ pub enum SpecimenAction {
 pub enum SpecimenReadFrom {
     /// Specimen.condition (coded).
     Condition,
+    /// Specimen.status (coded).
+    Status,
     /// Observation.interpretation (coded).
     Interpretation,
     /// The text of Observation.note or Specimen.note (words, not codes).
@@ -308,6 +310,7 @@ impl SpecimenReadFrom {
     pub fn label(self) -> &'static str {
         match self {
             Self::Condition => "coded in Specimen.condition",
+            Self::Status => "coded in Specimen.status",
             Self::Interpretation => "coded in Observation.interpretation",
             Self::NoteText => "read by text from a note (not coded)",
             Self::Reference => "Observation.specimen",

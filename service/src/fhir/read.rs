@@ -660,7 +660,7 @@ impl<'a> Reader<'a> {
             return;
         }
         // The specimen check: Specimen.condition, the result's own flags, notes.
-        let flags = self.specimen_flags(e, index, entries);
+        let flags = self.specimen_flags(e, index, entries, patient);
         for m in found {
             if self.specimen_check(e, &m, &flags, specimen) {
                 measurements.push(m);

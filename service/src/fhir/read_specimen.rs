@@ -16,6 +16,7 @@ use serde_json::Value;
 use super::{Entry, Index, Reader, SpecimenAction, SpecimenFinding, SpecimenReadFrom, codings, describe_codes, str_at};
 use crate::clinical::facts::{Measurement, Source};
 use crate::clinical::format::num;
+use crate::fhir::profiles::Kind;
 use crate::rules::model::SpecimenFlag;
 
 /// One problem read from the Observation, its Specimen or a note, before it
@@ -31,6 +32,9 @@ pub(super) struct RawFlag<'r> {
     /// What was found, in words.
     found: String,
 }
+
+/// FHIR R4 SpecimenStatus.
+const SPECIMEN_STATUS: &str = "http://hl7.org/fhir/specimen-status";
 
 /// The longest quote taken from a note.
 const QUOTE_CHARS: usize = 160;
@@ -66,6 +70,7 @@ impl<'a> Reader<'a> {
         e: &Entry<'_>,
         index: &Index<'_>,
         entries: &[Entry<'_>],
+        patient: &Entry<'_>,
     ) -> Vec<RawFlag<'a>> {
         let r = e.resource;
         let at = self.at(e.index);
@@ -97,7 +102,9 @@ impl<'a> Reader<'a> {
         }
         // The Specimen.
         if let Some(reference) = r.get("specimen") {
-            match self.resolve_specimen(e, reference, index, entries) {
+            match self.resolve_specimen(e, reference, index, entries).and_then(|(specimen, source, spath)| {
+                self.specimen_usable(specimen, &source, &spath, index, patient).map(|()| (specimen, source, spath))
+            }) {
                 Ok((specimen, source, spath)) => out.extend(self.conditions(specimen, &source, &spath)),
                 Err(why) => out.push(RawFlag {
                     flag: None,
@@ -171,9 +178,51 @@ impl<'a> Reader<'a> {
         }
     }
 
+    /// A resolved Specimen can be read for this patient: it matches the
+    /// Specimen profile, is not entered in error, and its subject (when
+    /// given) is the bundle's Patient.
+    fn specimen_usable(
+        &self,
+        specimen: &Value,
+        source: &Source,
+        at: &str,
+        index: &Index<'_>,
+        patient: &Entry<'_>,
+    ) -> Result<(), String> {
+        let errors = self.profiles.check(Kind::Specimen, specimen);
+        if let Some(first) = errors.first() {
+            return Err(format!(
+                "the Specimen {} does not match the Specimen profile ({at}{}: {})",
+                source.label(),
+                first.path,
+                first.message
+            ));
+        }
+        if str_at(specimen, "status") == Some("entered-in-error") {
+            return Err(format!("the Specimen {} is marked entered-in-error", source.label()));
+        }
+        if let Some(subject) = specimen.get("subject").and_then(|s| str_at(s, "reference"))
+            && index.resolve(subject, None) != Some(patient.index)
+        {
+            return Err(format!("the Specimen {}'s subject is not this patient", source.label()));
+        }
+        Ok(())
+    }
+
     /// The problems recorded on a Specimen: coded conditions, condition text, notes.
     fn conditions(&self, specimen: &Value, source: &Source, at: &str) -> Vec<RawFlag<'a>> {
         let mut out = Vec::new();
+        if let Some(status) = str_at(specimen, "status")
+            && let Some(flag) = self.flag_for(SPECIMEN_STATUS, status)
+        {
+            out.push(RawFlag {
+                flag: Some(flag),
+                read_from: SpecimenReadFrom::Status,
+                path: format!("{at}.status"),
+                specimen: Some(source.clone()),
+                found: format!("{SPECIMEN_STATUS}|{status} ({})", flag.display),
+            });
+        }
         let list = specimen.get("condition").and_then(Value::as_array).map(Vec::as_slice).unwrap_or_default();
         for (i, concept) in list.iter().enumerate() {
             let path = format!("{at}.condition[{i}]");
@@ -472,6 +521,42 @@ mod tests {
         assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1);
         assert_eq!(got.facts.specimen[0].action, SpecimenAction::NoEffect);
         assert!(got.facts.specimen[0].severity.is_none());
+    }
+
+    #[test]
+    fn specimen_status_subject_and_profile_decide_whether_the_specimen_can_be_read() {
+        let with = |edit: &dyn Fn(&mut Value)| {
+            let mut s = json!({ "resourceType": "Specimen", "id": "s", "subject": { "reference": "Patient/p" } });
+            edit(&mut s);
+            read(&[ionized(json!({ "specimen": { "reference": "Specimen/s" } })), s])
+        };
+        // Unsatisfactory (FHIR: cannot be used because of a quality issue): set aside.
+        let got = with(&|s| s["status"] = json!("unsatisfactory"));
+        assert!(got.facts.of(Analyte::CalciumIonized).is_empty());
+        let f = &got.facts.specimen[0];
+        assert_eq!((f.key.as_str(), f.read_from), ("unsatisfactory", SpecimenReadFrom::Status));
+        // Available, with this patient as subject: read, nothing to say.
+        let got = with(&|s| s["status"] = json!("available"));
+        assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1);
+        assert!(got.facts.specimen.is_empty());
+        // Entered in error, another patient's, or not a valid Specimen: the check could not run.
+        for (edit, why) in [
+            (&(|s: &mut Value| s["status"] = json!("entered-in-error")) as &dyn Fn(&mut Value), "entered-in-error"),
+            (&|s: &mut Value| s["subject"] = json!({ "reference": "Patient/someone-else" }), "not this patient"),
+            (&|s: &mut Value| s["condition"] = json!("CLOT"), "does not match the Specimen profile"),
+        ] {
+            let got = with(edit);
+            assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1, "{why}");
+            let f = &got.facts.specimen[0];
+            assert_eq!(f.action, SpecimenAction::Unread, "{why}");
+            assert!(f.found.contains(why), "{why}: {}", f.found);
+        }
+        let got = with(&|s| s["condition"] = json!("CLOT"));
+        assert!(
+            got.facts.specimen[0].found.contains("Bundle.entry[2].resource.condition"),
+            "{}",
+            got.facts.specimen[0].found
+        );
     }
 
     #[test]
