@@ -226,3 +226,56 @@ async fn a_specimen_on_another_server_is_never_fetched() {
     assert_r4_valid(&bundle);
     assert!(issue(&bundle, "specimen-unread").is_some(), "{bundle}");
 }
+
+/// `assess` of a request given as JSON (standard input).
+fn assess_doc(doc: &Value) -> Value {
+    use std::io::Write;
+    let mut child = Command::new(BIN)
+        .args(["assess", "-", "--now", NOW])
+        .env_remove("CALCIUM_CDS_RULES")
+        .stdin(std::process::Stdio::piped())
+        .stdout(std::process::Stdio::piped())
+        .stderr(std::process::Stdio::piped())
+        .spawn()
+        .unwrap();
+    child.stdin.take().unwrap().write_all(doc.to_string().as_bytes()).unwrap();
+    let out = child.wait_with_output().unwrap();
+    assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+    serde_json::from_slice(&out.stdout).unwrap()
+}
+
+#[test]
+fn a_normal_magnesium_from_a_hemolyzed_sample_does_not_rule_out_a_low_one() {
+    // The hemolyzed case, plus a magnesium of 0.80 mmol/L (within range) on the same Specimen.
+    let text = std::fs::read_to_string(repo_path("tests/cases/specimen-hemolyzed-ionized-child.json")).unwrap();
+    let mut doc: Value = serde_json::from_str(&text).unwrap();
+    let entries = doc["entry"].as_array_mut().unwrap();
+    let ica = entries.iter().find(|e| e["resource"]["code"]["coding"][0]["code"] == "1994-3").unwrap().clone();
+    let mut mg = ica.clone();
+    mg["fullUrl"] = json!("urn:uuid:7d1f3c0e-2b8a-4c51-9e47-0a6b5d2f8c13");
+    mg["resource"]["code"] = json!({ "coding": [{ "system": "http://loinc.org", "code": "2601-3",
+        "display": "Magnesium [Moles/volume] in Serum or Plasma" }] });
+    mg["resource"]["valueQuantity"] =
+        json!({ "value": 0.80, "unit": "mmol/L", "system": "http://unitsofmeasure.org", "code": "mmol/L" });
+    entries.push(mg);
+    let hemolyzed = assess_doc(&doc);
+    assert_r4_valid(&hemolyzed);
+    // The same request with the Specimen's condition removed.
+    let mut sound = doc.clone();
+    for e in sound["entry"].as_array_mut().unwrap() {
+        if e["resource"]["resourceType"] == "Specimen" {
+            e["resource"].as_object_mut().unwrap().remove("condition");
+        }
+    }
+    let sound = assess_doc(&sound);
+    let magnesium_proposed = |b: &Value| {
+        resources(b, "ServiceRequest").iter().any(|s| s["code"].to_string().to_lowercase().contains("magnesium"))
+    };
+    assert!(!magnesium_proposed(&sound), "a sound normal magnesium is a result: not asked for again");
+    assert!(magnesium_proposed(&hemolyzed), "a hemolyzed normal magnesium is asked for again");
+    let oo = &resources(&hemolyzed, "OperationOutcome")[0];
+    assert!(diagnostics(oo).contains("can falsely raise it"), "{}", diagnostics(oo));
+    // Both results from the sample are named in the one hemolysis DetectedIssue.
+    let detail = issue(&hemolyzed, "specimen-hemolyzed").unwrap()["detail"].as_str().unwrap().to_owned();
+    assert!(detail.contains("Magnesium") && detail.contains("Calcium.ionized"), "{detail}");
+}

@@ -347,6 +347,9 @@ pub struct SpecimenFinding {
     pub source: String,
     /// DetectedIssue severity (None for NoEffect).
     pub severity: Option<crate::rules::model::IssueSeverity>,
+    /// The problem can falsely raise this result: a value that is not low
+    /// cannot exclude a low one.
+    pub masks_low: bool,
 }
 
 /// Everything the core reads.

@@ -182,5 +182,6 @@ pub fn specimen_finding(
         mitigation: "repeat".into(),
         source: "test".into(),
         severity: Some(crate::rules::model::IssueSeverity::High),
+        masks_low: false,
     }
 }

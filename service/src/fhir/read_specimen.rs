@@ -375,6 +375,7 @@ impl<'a> Reader<'a> {
                 mitigation,
                 source,
                 severity,
+                masks_low: raw.flag.is_some_and(|f| f.not_reassuring_for.iter().any(|k| k == m.analyte.key())),
             });
         }
         keep
@@ -557,6 +558,17 @@ mod tests {
             "{}",
             got.facts.specimen[0].found
         );
+    }
+
+    #[test]
+    fn hemolysis_marks_a_magnesium_as_unable_to_exclude_a_low_one_but_not_the_calcium() {
+        let mut mg = ionized(json!({ "specimen": { "reference": "Specimen/s" } }));
+        mg["id"] = json!("mg");
+        mg["code"] = json!({ "coding": [{ "system": "http://loinc.org", "code": "2601-3" }] });
+        let got = read(&[ionized(json!({ "specimen": { "reference": "Specimen/s" } })), mg, spec("s", "HEM")]);
+        let masks: Vec<(Analyte, bool)> = got.facts.specimen.iter().map(|f| (f.analyte, f.masks_low)).collect();
+        assert_eq!(masks, [(Analyte::CalciumIonized, false), (Analyte::Magnesium, true)]);
+        assert_eq!(got.facts.of(Analyte::Magnesium).len(), 1, "still read; the work-up decides");
     }
 
     #[test]

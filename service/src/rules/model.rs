@@ -119,6 +119,10 @@ pub struct SpecimenFlag {
     pub set_aside_for: Vec<String>,
     /// Lower-case stems looked for in note text.
     pub text_terms: Vec<String>,
+    /// Analyte keys the flag can falsely raise: a result that is not low is
+    /// not used by the work-up (it cannot exclude a low value).
+    #[serde(default)]
+    pub not_reassuring_for: Vec<String>,
     /// What it means for the result.
     pub effect: String,
     /// What to do.
