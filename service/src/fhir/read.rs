@@ -87,6 +87,8 @@ struct Reader<'a> {
     prefix: String,
     set_aside: Vec<SetAside>,
     now: i64,
+    /// Entry indices of the Specimens a result referred to (read by the specimen check).
+    specimens_read: Vec<usize>,
 }
 
 fn str_at<'v>(v: &'v Value, key: &str) -> Option<&'v str> {
@@ -218,7 +220,7 @@ pub fn read_value(
             ));
         }
     };
-    let mut reader = Reader { access, rules, profiles, prefix, set_aside: Vec::new(), now };
+    let mut reader = Reader { access, rules, profiles, prefix, set_aside: Vec::new(), now, specimens_read: Vec::new() };
     let (facts, patient_reference) = reader.bundle(bundle)?;
     Ok(Ingested {
         facts,
@@ -378,9 +380,14 @@ impl<'a> Reader<'a> {
                 "Procedure" => self.procedure(e, &index, patient, &mut events),
                 "Medication" => self
                     .ignore(e, "Medication resources are read only through the medication records that refer to them"),
-                "Specimen" => self.ignore(e, "Specimen resources are read only through the results that refer to them"),
+                // Read through the results that refer to them; the others are listed below.
+                "Specimen" => {}
                 other => self.ignore(e, format!("resource type {other} is not read by this version of the rules")),
             }
+        }
+        let read = std::mem::take(&mut self.specimens_read);
+        for e in entries.iter().filter(|e| e.resource_type == "Specimen" && !read.contains(&e.index)) {
+            self.ignore(e, "no result read here refers to this Specimen");
         }
         // Gestational age is a fact about the patient, not a result to judge.
         measurements.retain(|m: &Measurement| {

@@ -141,7 +141,7 @@ impl<'a> Reader<'a> {
 
     /// The Specimen an Observation refers to, with its source and location.
     fn resolve_specimen<'v>(
-        &self,
+        &mut self,
         e: &'v Entry<'_>,
         reference: &'v Value,
         index: &Index<'_>,
@@ -170,7 +170,10 @@ impl<'a> Reader<'a> {
             };
         }
         match index.resolve(text, e.full_url).and_then(|i| entries.iter().find(|x| x.index == i)) {
-            Some(s) if s.resource_type == "Specimen" => Ok((s.resource, self.source(s, ""), self.at(s.index))),
+            Some(s) if s.resource_type == "Specimen" => {
+                self.specimens_read.push(s.index);
+                Ok((s.resource, self.source(s, ""), self.at(s.index)))
+            }
             Some(_) => Err(format!("Observation.specimen '{text}' refers to a resource that is not a Specimen")),
             None => Err(format!(
                 "the Specimen '{text}' is neither contained in the result nor in the request (nor returned by the EHR when the context was gathered there)"
@@ -465,6 +468,12 @@ mod tests {
             [(Analyte::CalciumIonized, SpecimenAction::SetAside), (Analyte::CalciumTotal, SpecimenAction::Caution)]
         );
         assert_eq!(got.facts.specimen[0].specimen.as_ref().unwrap().reference.as_deref(), Some("Specimen/s1"));
+        assert!(got.set_aside.iter().all(|s| s.resource != "Specimen/s1"), "read, so not listed: {:?}", got.set_aside);
+        // A Specimen no result refers to is listed as not read.
+        let got = read(&[ionized(json!({})), spec("lonely", "CLOT")]);
+        let listed = got.set_aside.iter().find(|s| s.resource == "Specimen/lonely").unwrap();
+        assert_eq!(listed.severity, IssueSeverityLevel::Information);
+        assert!(got.facts.specimen.is_empty() && got.facts.of(Analyte::CalciumIonized).len() == 1);
 
         let got = read(&[ionized(json!({ "specimen": { "reference": "Specimen/s2" } })), spec("s2", "HEM")]);
         assert_eq!(got.facts.of(Analyte::CalciumIonized).len(), 1, "hemolyzed: used");
