@@ -307,11 +307,19 @@ impl<'a> Reader<'a> {
                         SpecimenAction::Caution
                     };
                     let source = if coded { flag.source.clone() } else { format!("{}; {}", spec.text_source, flag.source) };
+                    let effect = if coded {
+                        flag.effect.clone()
+                    } else {
+                        format!(
+                            "Found in words, not coded: the result is used, with this caution (words never set a result aside). What a {} sample means when it is coded: {}",
+                            flag.label, flag.effect
+                        )
+                    };
                     (
                         flag.key.clone(),
                         flag.label.clone(),
                         action,
-                        flag.effect.clone(),
+                        effect,
                         flag.mitigation.clone(),
                         source,
                         flag.severity,
