@@ -24,6 +24,10 @@
 //! tests_proposed = true                 # at least one next test is (or no test is) proposed
 //! adjusted_calcium = true               # an albumin-adjusted calcium Observation is (or is not) computed
 //! set_aside = [".valueQuantity.code"]   # each: the end of the element of an input set aside with a warning
+//! [safety_text]                        # words a safety check's DetectedIssue.detail must contain
+//! weight = ["Unit slip"]
+//! [proposal_text]                      # words a proposal's dosage text must contain
+//! calcium-infusion = ["mL/kg/day"]
 //! [doses.calcium-bolus]                 # dose per administration within [min, max]
 //! min = 700.0
 //! max = 800.0
@@ -89,6 +93,12 @@ pub struct Expectation {
     /// Element endings of inputs that must be set aside with a warning.
     #[serde(default)]
     pub set_aside: Vec<String>,
+    /// Texts each safety check's DetectedIssue.detail must contain, by key.
+    #[serde(default)]
+    pub safety_text: BTreeMap<String, Vec<String>>,
+    /// Texts each proposal's dosage instruction text must contain, by key.
+    #[serde(default)]
+    pub proposal_text: BTreeMap<String, Vec<String>>,
     /// Dose ranges by proposal key.
     #[serde(default)]
     pub doses: BTreeMap<String, DoseRange>,
@@ -273,6 +283,20 @@ pub fn compare(engine: &Engine, name: String, body: &[u8], exp: &Expectation) ->
             got.map_or_else(|| "(not set aside)".to_owned(), |_| "set aside with a warning".to_owned()),
         );
     }
+    for (map, texts, what) in
+        [(&exp.safety_text, &view.safety_detail, "safety"), (&exp.proposal_text, &view.proposal_text, "proposal")]
+    {
+        for (key, words) in map {
+            for w in words {
+                let got = match texts.get(key) {
+                    None => "(no such resource)".to_owned(),
+                    Some(t) if t.contains(w.as_str()) => w.clone(),
+                    Some(t) => t.chars().take(200).collect(),
+                };
+                check(&format!("{what} {key} text"), w.clone(), got);
+            }
+        }
+    }
     for (key, range) in &exp.doses {
         let want = format!(
             "{} to {}",
@@ -307,6 +331,10 @@ struct View {
     doses: BTreeMap<String, Option<(f64, String)>>,
     /// Safety check keys raised.
     safety: Vec<String>,
+    /// DetectedIssue.detail of each safety check raised.
+    safety_detail: BTreeMap<String, String>,
+    /// Dosage instruction text of each proposal.
+    proposal_text: BTreeMap<String, String>,
     /// An albumin-adjusted calcium Observation was computed.
     adjusted: bool,
     /// Elements of inputs set aside with a warning or an error.
@@ -331,6 +359,7 @@ impl View {
                     if hypocalcemia {
                         v.severity = r["severity"].as_str().map(str::to_owned);
                     } else if let Some(key) = identifier(r, &safety_sid) {
+                        v.safety_detail.insert(key.clone(), r["detail"].as_str().unwrap_or("").to_owned());
                         v.safety.push(key);
                     }
                 }
@@ -368,6 +397,8 @@ impl View {
                     if let Some(key) = identifier(r, &proposal_sid) {
                         let q = &r["dosageInstruction"][0]["doseAndRate"][0]["doseQuantity"];
                         let dose = q["value"].as_f64().map(|x| (x, q["unit"].as_str().unwrap_or("").to_owned()));
+                        let text = r["dosageInstruction"][0]["text"].as_str().unwrap_or("").to_owned();
+                        v.proposal_text.insert(key.clone(), text);
                         v.doses.insert(key, dose);
                     }
                 }

@@ -535,7 +535,7 @@ impl Maker<'_> {
     fn band(rules: &RuleSet, birth: CivilDate, at: i64, gestation: Option<f64>) -> Result<&AgeBand, SynthError> {
         let date = CivilDate::of_instant(at, 0);
         let when = When { earliest: at, latest: at, local_date_earliest: date, local_date_latest: date };
-        let choice = crate::clinical::bands::choose(rules, PartialDate::Full(birth), &when, gestation, None)
+        let choice = crate::clinical::bands::choose(rules, PartialDate::Full(birth), &when, gestation, None, None)
             .map_err(|e| err(format!("no calcium band for this age: {e:?}")))?;
         choice.candidates.first().copied().ok_or_else(|| err("no calcium band covers this age"))
     }
@@ -681,7 +681,7 @@ pub fn make(rules: &RuleSet, cat: &Catalogue, req: &Request) -> Result<Value, Sy
     // Gestational age for neonates, so the band choice is the one drawn against.
     let neonate = rules.bands.iter().any(|b| b.needs_full_birth_date && !at_least(age, b.until));
     let gestation = if neonate {
-        let preterm_limit = rules.bands.iter().find_map(|b| b.preterm_below_weeks);
+        let preterm_limit = Some(rules.growth_policy.preterm_below_weeks);
         let weeks = match (sc.preterm || sc.events.iter().any(|e| e.list == "prematurity"), preterm_limit) {
             (true, Some(limit)) => (limit - 5.0 + m.rng.unit() * 3.0).floor(),
             _ => 38.0 + (m.rng.unit() * 3.0).floor(),

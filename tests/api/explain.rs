@@ -89,7 +89,7 @@ fn the_cli_prints_a_readable_trace_and_the_bundle_carries_it_as_parameters() {
     // Every cause of the rules is weighed in the trace, and every safety check is listed.
     let causes = s.iter().filter(|x| x.0 == "causes" && x.1.starts_with("causes.")).count();
     assert_eq!(causes, 19, "{s:?}");
-    assert_eq!(s.iter().filter(|x| x.0 == "safety").count(), 14, "{s:?}");
+    assert_eq!(s.iter().filter(|x| x.0 == "safety").count(), 16, "{s:?}");
     // The calcium step names the Observation it read, by its place in the request.
     let band = s.iter().find(|x| x.1 == "bands.child").unwrap();
     assert_eq!(band.3.first().map(String::as_str), Some("Bundle.entry[1].resource"));
@@ -169,4 +169,35 @@ async fn the_http_operation_adds_the_trace_only_when_asked_and_refuses_a_bad_fla
     let oo: Value = bad.json().await.unwrap();
     assert_eq!(oo["resourceType"], "OperationOutcome");
     assert_eq!(oo["issue"][0]["expression"][0], "_explain");
+}
+
+#[test]
+fn the_band_step_says_why_a_neonate_is_judged_on_the_birth_weight_limits() {
+    // Vuralli 2019: < 1.1 mmol/L for term and preterm over 1500 g, < 1.0 under 1500 g.
+    let (bundle, text) = assess("tests/cases/late-preterm-35wk-2600g-ionized-1.05-low.json", &["--explain"]);
+    assert_r4_valid(&bundle);
+    let band =
+        text.lines().skip_while(|l| !l.starts_with("[bands.term-neonate]")).take(4).collect::<Vec<_>>().join("\n");
+    assert!(band.contains("Birth weight 2.6 kg is not below 1.5 kg"), "{band}");
+    let (bundle, text) = assess("tests/cases/vlbw-29wk-1200g-ionized-1.05-normal.json", &["--explain"]);
+    assert_r4_valid(&bundle);
+    let band =
+        text.lines().skip_while(|l| !l.starts_with("[bands.vlbw-neonate]")).take(4).collect::<Vec<_>>().join("\n");
+    assert!(band.contains("Birth weight 1.2 kg is below 1.5 kg"), "{band}");
+    let (bundle, text) = assess("tests/cases/neonate-1100g-gestation-unknown-seizure.json", &["--explain"]);
+    assert_r4_valid(&bundle);
+    let weight = text
+        .lines()
+        .skip_while(|l| !l.contains("Which weight are doses based on?"))
+        .take(5)
+        .collect::<Vec<_>>()
+        .join("\n");
+    assert!(weight.contains("1.1 kg used; to be confirmed"), "{weight}");
+    // The other new outputs (unit slip refusal, fluid-load warning) are valid R4 too.
+    for file in
+        ["tests/cases/neonate-weight-unit-slip-1100-kg.json", "tests/cases/neonate-term-day1-infusion-fluid-load.json"]
+    {
+        let (bundle, _) = assess(file, &["--explain"]);
+        assert_r4_valid(&bundle);
+    }
 }

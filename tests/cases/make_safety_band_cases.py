@@ -50,6 +50,7 @@ LAB = {
     "weight": ("29463-7", "Body weight", "Weight", "kg"),
     "qtc": ("8636-3", "QT interval corrected", "QTc (ECG)", "ms"),
     "ga": ("76516-4", "Gestational age--at birth", "Gestational age at birth", "wk"),
+    "bw": ("8339-4", "Birth weight Measured", "Birth weight", "g"),
 }
 SYMPTOM = {
     "seizure": ("91175000", "Seizure"),
@@ -105,12 +106,12 @@ class Case:
     def lab(self, key, value, when):
         loinc, display, text, unit = LAB[key]
         coding = {"system": LOINC, "code": loinc, "display": display}
-        vital = key in ("height", "weight", "qtc", "ga")
+        vital = key in ("height", "weight", "qtc", "ga", "bw")
         r = {
             "resourceType": "Observation",
             "status": "final",
             "category": [{"coding": [{"system": "http://terminology.hl7.org/CodeSystem/observation-category",
-                                      "code": "vital-signs" if key in ("height", "weight") else
+                                      "code": "vital-signs" if key in ("height", "weight", "bw") else
                                       ("exam" if vital else "laboratory")}]}],
             "code": {"coding": [coding], "text": text},
             "subject": {"reference": self.subject},
@@ -487,24 +488,26 @@ max = 401.0
 
 NEO_R = "2026-11-30T07:40:00-05:00"
 
-c = Case("band-preterm-neonate-low", "Thistlewood", ["Baby Boy"], "male", "2026-11-24", "2026-11-24T02:30:00-05:00")
-c.lab("ga", 34, "2026-11-24T02:30:00-05:00").lab("ica", 0.99, NEO_R).lab("weight", 2.1, W)
+c = Case("band-vlbw-neonate-low", "Thistlewood", ["Baby Boy"], "male", "2026-11-24", "2026-11-24T02:30:00-05:00")
+(c.lab("ga", 30, "2026-11-24T02:30:00-05:00").lab("bw", 1350, "2026-11-24T02:30:00-05:00")
+ .lab("ica", 0.99, NEO_R).lab("weight", 1.32, W))
 write(c, f'''
-description = "Boy born at 34 weeks (gestational age recorded), day 6: preterm-neonate band, ionized lower limit 1.0 mmol/L. Ionized 0.99 is below it: hypocalcemia, asymptomatic, so oral calcium is proposed (a term neonate at 0.99 would also be low)."
+description = "Boy born at 30 weeks weighing 1350 g (birth weight recorded, LOINC 8339-4), day 6: very-low-birth-weight band (Vuralli 2019, Int J Pediatr 2019:4318075: ionized Ca < 1.0 mmol/L under 1500 g). Ionized 0.99 is below it: hypocalcemia, asymptomatic, so oral calcium is proposed (a term neonate at 0.99 would also be low)."
 now = "{NOW}"
 # data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
 status = "data-required"
-# 0.99 <= 1.0, the preterm band's mild grade (Tayside mild <= 1.0, at the band's lower limit): moderate, as a term neonate at 0.99 would be.
+# 0.99 <= 1.0, the band's mild grade (Tayside mild <= 1.0, at the band's lower limit): moderate, as a term neonate at 0.99 would be.
 severity = "moderate"
 proposals = ["oral-calcium"]
 proposals_absent = ["calcium-bolus"]
 ''')
 
-c = Case("band-preterm-neonate-normal", "Thistlewood", ["Baby Girl"], "female", "2026-11-24",
+c = Case("band-vlbw-neonate-normal", "Thistlewood", ["Baby Girl"], "female", "2026-11-24",
          "2026-11-24T02:34:00-05:00")
-c.lab("ga", 34, "2026-11-24T02:34:00-05:00").lab("ica", 1.00, NEO_R).lab("weight", 2.0, W)
+(c.lab("ga", 30, "2026-11-24T02:34:00-05:00").lab("bw", 1290, "2026-11-24T02:34:00-05:00")
+ .lab("ica", 1.00, NEO_R).lab("weight", 1.27, W))
 write(c, f'''
-description = "Girl born at 34 weeks (twin of band-preterm-neonate-low), day 6: ionized 1.00 mmol/L is at the preterm lower limit 1.0: normal. Had the term-neonate band been used (lower 1.10, mild grade 1.0) she would be low, moderate."
+description = "Girl born at 30 weeks weighing 1290 g (twin of band-vlbw-neonate-low), day 6: ionized 1.00 mmol/L is at the very-low-birth-weight lower limit 1.0 (Vuralli 2019): normal. Had the term-neonate band been used (lower 1.10, mild grade 1.0) she would be low, moderate."
 now = "{NOW}"
 status = "success"
 severity = "none"
@@ -514,7 +517,7 @@ proposals_absent = ["oral-calcium", "calcium-bolus"]
 c = Case("band-term-neonate-low", "Ravensdale", ["Baby Girl"], "female", "2026-11-20")
 c.lab("ga", 39, "2026-11-20T08:00:00-05:00").lab("ica", 1.09, NEO_R).lab("weight", 3.5, W)
 write(c, f'''
-description = "Girl born at 39 weeks, day 10: term-neonate band, ionized lower limit 1.10 mmol/L. Ionized 1.09 is below it and above the mild grade 1.0: low. (The preterm band, lower 1.0, would call it normal.)"
+description = "Girl born at 39 weeks, day 10: term-neonate band, ionized lower limit 1.10 mmol/L. Ionized 1.09 is below it and above the mild grade 1.0: low. (The very-low-birth-weight band, lower 1.0, would call it normal.)"
 now = "{NOW}"
 # data-required: with only a calcium (and a weight) the causes cannot be told apart (tied leading causes), so the work-up asks for tests while treatment is proposed.
 status = "data-required"
@@ -761,6 +764,116 @@ safety_absent = {absent("saline-diluent")}
 min = 1000.0
 max = 1000.0
 ''', SITE)
+
+# ---------------------------------------------------------------------------
+# Preterm and very small babies (issue 13, section 1): dosing weight judged
+# against gestation (UK-WHO preterm weight data, growth.toml), low weights of
+# unknown gestation dosed with a caution, unit slips named; the neonatal band
+# chosen by birth weight (Vuralli 2019); the infusion's fluid load.
+# Written to tests/cases.
+# ---------------------------------------------------------------------------
+
+PT_BIRTH = "2026-11-27T05:10:00-05:00"  # 3 days 2 h 30 min before the 07:40 draw: day of life 4
+
+c = Case("preterm-27wk-1kg-day3-seizure", "Fairweather", ["Baby Boy"], "male", "2026-11-27", PT_BIRTH)
+(c.lab("ga", 27, PT_BIRTH).lab("bw", 980, PT_BIRTH).lab("ica", 0.62, R).symptom("seizure", SZ)
+ .lab("weight", 1.0, W))
+write(c, f'''
+description = "Boy born at 27 weeks weighing 980 g, 3 days old, seizing, ionized Ca 0.62 mmol/L: very-low-birth-weight band (Vuralli 2019, Int J Pediatr 2019:4318075: < 1.0 mmol/L under 1500 g), at or below the neonatal severe grade 0.7 (NHS Tayside): high. His 1.0 kg is judged against the UK-WHO preterm weight data at 27 3/7 weeks postmenstrual age (rcpchgrowth 4.6.5: z -0.46), not the term chart (z below -5), so the IV bolus and infusion are proposed. The infusion is 40.8 mL/kg/day, 68% of the day-4 fluid allowance of 60 mL/kg/day (ESPGHAN/ESPEN/ESPR/CSPEN 2018, term lower end): a fluid-load warning."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["fluid-load"]
+safety_absent = ["weight", "weight-confirm"]
+[proposal_text]
+# 1.0 kg x 17 mg/kg/h (US label, neonates) = 17 mg/h at 10 mg/mL = 1.7 mL/h; x 24 / 1.0 kg = 40.8 mL/kg/day; / 60 = 68%.
+calcium-infusion = ["1.7 mL/h x 24 h / 1 kg = 40.8 mL/kg/day", "68% of the day-4 fluid allowance of 60 mL/kg/day"]
+[doses.calcium-bolus]
+# 1.0 kg x 100 mg/kg (US label, neonates, low end) = 100 mg calcium gluconate.
+min = 99.0
+max = 101.0
+''')
+
+c = Case("neonate-1100g-gestation-unknown-seizure", "Fairweather", ["Baby Girl"], "female", "2026-11-27", PT_BIRTH)
+c.lab("ica", 0.65, R).symptom("seizure", SZ).lab("weight", 1.1, W)
+write(c, f'''
+description = "Girl 3 days old weighing 1.1 kg, gestational age and birth weight not recorded, seizing with ionized Ca 0.65 mmol/L (term-neonate band, severe grade 0.7: high). 1.1 kg is far below the WHO term chart (z below -5) but possible for a baby born preterm (UK-WHO preterm weight data), so the emergency bolus is proposed on 1.1 kg with a WARNING to confirm the weight and record the gestation, never a silent refusal."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["weight-confirm", "fluid-load"]
+safety_absent = ["weight"]
+[safety_text]
+weight-confirm = ["the gestational age at birth is not recorded", "born preterm at", "Confirm the weight"]
+[doses.calcium-bolus]
+# 1.1 kg x 100 mg/kg (US label, neonates, low end) = 110 mg calcium gluconate.
+min = 109.0
+max = 111.0
+''')
+
+c = Case("neonate-weight-unit-slip-1100-kg", "Fairweather", ["Baby Boy"], "male", "2026-11-27", PT_BIRTH)
+c.lab("ica", 0.65, R).symptom("seizure", SZ).lab("weight", 1100, W)
+write(c, f'''
+description = "Boy 3 days old, seizing with ionized Ca 0.65 mmol/L (severe: high), whose weight is recorded as 1100 kg: grams entered as kilograms (1100 g = 1.1 kg is possible for a newborn). No dose is proposed on it, and the weight check says it is a unit slip."
+now = "{NOW}"
+severity = "high"
+proposals_absent = ["calcium-bolus", "calcium-infusion", "oral-calcium"]
+safety_present = ["weight"]
+safety_absent = ["weight-confirm"]
+[safety_text]
+weight = ["Unit slip", "grams entered as kilograms", "1.1 kg would be plausible"]
+''')
+
+c = Case("late-preterm-35wk-2600g-ionized-1.05-low", "Penhallow", ["Baby Girl"], "female", "2026-11-25",
+         "2026-11-25T09:20:00-05:00")
+(c.lab("ga", 35, "2026-11-25T09:20:00-05:00").lab("bw", 2600, "2026-11-25T09:20:00-05:00")
+ .lab("ica", 1.05, R).lab("weight", 2.52, W))
+write(c, f'''
+description = "Girl born at 35 weeks weighing 2600 g, day 5, ionized Ca 1.05 mmol/L: a late-preterm baby of normal birth weight is judged on the limits for term and preterm infants over 1500 g (Vuralli 2019, Int J Pediatr 2019:4318075: ionized < 1.1 mmol/L), not the very-low-birth-weight limit (< 1.0): low, above the mild grade 1.0, asymptomatic: oral calcium."
+now = "{NOW}"
+severity = "low"
+proposals = ["oral-calcium"]
+proposals_absent = ["calcium-bolus"]
+safety_absent = ["weight", "weight-confirm"]
+''')
+
+c = Case("vlbw-29wk-1200g-ionized-1.05-normal", "Penhallow", ["Baby Boy"], "male", "2026-11-25",
+         "2026-11-25T09:40:00-05:00")
+(c.lab("ga", 29, "2026-11-25T09:40:00-05:00").lab("bw", 1200, "2026-11-25T09:40:00-05:00")
+ .lab("ica", 1.05, R).lab("weight", 1.16, W))
+write(c, f'''
+description = "Boy born at 29 weeks weighing 1200 g, day 5, ionized Ca 1.05 mmol/L: very low birth weight, so the limit is ionized < 1.0 mmol/L (Vuralli 2019, Int J Pediatr 2019:4318075): not low, nothing proposed. (The 35-week, 2600 g girl at the same value is low.)"
+now = "{NOW}"
+severity = "none"
+proposals_absent = ["oral-calcium", "calcium-bolus"]
+''')
+
+c = Case("preterm-34wk-birth-weight-unknown-ionized-1.00-low", "Penhallow", ["Baby Girl"], "female", "2026-11-24",
+         "2026-11-24T02:34:00-05:00")
+c.lab("ga", 34, "2026-11-24T02:34:00-05:00").lab("ica", 1.00, NEO_R).lab("weight", 2.0, W)
+write(c, f'''
+description = "Girl born at 34 weeks, day 6, birth weight not recorded, ionized Ca 1.00 mmol/L. Vuralli 2019 sets the limit by birth weight (< 1.1 mmol/L for preterm over 1500 g, < 1.0 under 1500 g); without a birth weight the higher limit is used (project decision: no low value is missed; the basis says so): low, at the mild grade 1.0 (NHS Tayside): moderate, oral calcium."
+now = "{NOW}"
+severity = "moderate"
+proposals = ["oral-calcium"]
+''')
+
+c = Case("neonate-term-day1-infusion-fluid-load", "Penhallow", ["Baby Boy"], "male", "2026-11-30",
+         "2026-11-30T01:15:00-05:00")
+(c.lab("ga", 39, "2026-11-30T01:15:00-05:00").lab("bw", 3200, "2026-11-30T01:15:00-05:00")
+ .lab("ica", 0.6, R).symptom("seizure", SZ).lab("weight", 3.2, W))
+write(c, f'''
+description = "Boy born at 39 weeks weighing 3200 g, 6 hours old (day of life 1), seizing with ionized Ca 0.60 mmol/L (severe: high): bolus and infusion proposed. The infusion is 40.5 mL/kg/day, 101% of the day-1 fluid allowance of 40 mL/kg/day (ESPGHAN/ESPEN/ESPR/CSPEN 2018: term neonates day 1 40-60 mL/kg/day): a fluid-load warning suggesting the calcium be counted within, or added to, the maintenance fluid."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["fluid-load"]
+safety_absent = ["weight", "weight-confirm"]
+[proposal_text]
+# 3.2 kg x 17 mg/kg/h = 54.4 mg/h at 10 mg/mL = 5.44 mL/h, rounded to the pump's 0.1 mL/h = 5.4 mL/h;
+# 5.4 x 24 / 3.2 = 40.5 mL/kg/day; / 40 = 101%.
+calcium-infusion = ["5.4 mL/h x 24 h / 3.2 kg = 40.5 mL/kg/day", "101% of the day-1 fluid allowance of 40 mL/kg/day"]
+''')
 
 # ---------------------------------------------------------------------------
 # Specimen problems (issue 13, section 5): Specimen.condition (HL7 v2 table 0493), the

@@ -50,11 +50,13 @@ pub fn choose<'r>(
     when: &When,
     gestational_age_weeks: Option<f64>,
     birth_instant: Option<i64>,
+    birth_weight_kg: Option<f64>,
 ) -> Result<BandChoice<'r>, NoBand> {
     let (age_min, age_max) = age_interval(birth, birth_instant, when).ok_or(NoBand::BornAfterResult)?;
     let mut notes = Vec::new();
     let mut skipped_neonatal = false;
     let mut skipped_preterm = false;
+    let mut skipped_birth_weight: Option<&AgeBand> = None;
     let mut candidates = Vec::new();
     for band in &rules.bands {
         let overlaps = at_least(age_max, band.from) && !at_least(age_min, band.until);
@@ -78,6 +80,24 @@ pub fn choose<'r>(
                     continue;
                 }
                 _ => continue,
+            }
+        }
+        if let Some(limit) = band.birth_weight_below_kg {
+            let source = band.birth_weight_source.as_deref().unwrap_or("rule set");
+            match birth_weight_kg {
+                Some(bw) if bw < limit => notes.push(format!(
+                    "Birth weight {bw} kg is below {limit} kg: the limits for that birth weight apply ({source})."
+                )),
+                Some(bw) => {
+                    notes.push(format!(
+                        "Birth weight {bw} kg is not below {limit} kg, so the limits for babies born under {limit} kg do not apply ({source})."
+                    ));
+                    continue;
+                }
+                None => {
+                    skipped_birth_weight = Some(band);
+                    continue;
+                }
             }
         }
         candidates.push(band);
@@ -112,6 +132,19 @@ pub fn choose<'r>(
                 .to_owned(),
         );
     }
+    if let Some(band) = skipped_birth_weight
+        && candidates.iter().any(|b| b.needs_full_birth_date)
+    {
+        let limit = band.birth_weight_below_kg.unwrap_or_default();
+        notes.push(format!(
+            "Birth weight is not recorded, so the limits for babies born at {limit} kg or more were used{}: they have the higher lower limits, so no low value is missed in a baby who may weigh {limit} kg or more, but for a baby born under {limit} kg they may call low a value that the limits for that birth weight ({}) call normal. Record the birth weight (LOINC 8339-4).",
+            match gestational_age_weeks {
+                Some(ga) => format!(" (born at {ga} weeks)"),
+                None => String::new(),
+            },
+            band.label
+        ));
+    }
     if candidates.is_empty() {
         return Err(NoBand::OutsideScope(format!(
             "Age {} on the result date is outside every age band of the rule set. {}",
@@ -142,7 +175,7 @@ mod tests {
     }
 
     fn band_of(rules: &RuleSet, birth: PartialDate, when: When, ga: Option<f64>) -> Vec<String> {
-        choose(rules, birth, &when, ga, None).unwrap().candidates.iter().map(|b| b.id.clone()).collect()
+        choose(rules, birth, &when, ga, None, None).unwrap().candidates.iter().map(|b| b.id.clone()).collect()
     }
 
     #[test]
@@ -160,27 +193,48 @@ mod tests {
         assert_eq!(band_of(&r, birth, on(2036, 1, 1), None), ["adolescent"]);
         // Day before the 19th birthday: adolescent; on it: outside the rules.
         assert_eq!(band_of(&r, birth, on(2042, 12, 31), None), ["adolescent"]);
-        assert!(matches!(choose(&r, birth, &on(2043, 1, 1), None, None), Err(NoBand::OutsideScope(_))));
+        assert!(matches!(choose(&r, birth, &on(2043, 1, 1), None, None, None), Err(NoBand::OutsideScope(_))));
         // Day of birth.
         assert_eq!(band_of(&r, birth, on(2024, 1, 1), None), ["term-neonate"]);
     }
 
     #[test]
-    fn preterm_band_needs_a_recorded_gestational_age_below_37_weeks() {
+    fn the_vlbw_band_needs_a_recorded_birth_weight_below_1500_g() {
+        // Vuralli 2019: ionized < 1.0 mmol/L under 1500 g, < 1.1 for term and preterm over 1500 g.
         let r = rules();
         let birth = full(2026, 11, 28);
-        assert_eq!(band_of(&r, birth, on(2026, 11, 30), Some(33.0)), ["preterm-neonate"]);
-        assert_eq!(band_of(&r, birth, on(2026, 11, 30), Some(37.0)), ["term-neonate"]);
-        let choice = choose(&r, birth, &on(2026, 11, 30), None, None).unwrap();
-        assert_eq!(choice.candidates[0].id, "term-neonate");
-        assert!(choice.notes.iter().any(|n| n.contains("Gestational age at birth is not recorded")));
+        let when = on(2026, 11, 30);
+        let ids = |ga, bw| -> Vec<String> {
+            choose(&r, birth, &when, ga, None, bw).unwrap().candidates.iter().map(|b| b.id.clone()).collect()
+        };
+        assert_eq!(ids(Some(28.0), Some(1.1)), ["vlbw-neonate"]);
+        // A late-preterm baby of normal birth weight: the term limits, with the reason.
+        assert_eq!(ids(Some(35.0), Some(2.6)), ["term-neonate"]);
+        let c = choose(&r, birth, &when, Some(35.0), None, Some(2.6)).unwrap();
+        assert!(c.notes.iter().any(|n| n.contains("Birth weight 2.6 kg is not below 1.5 kg")), "{:?}", c.notes);
+        // 1.5 kg itself is not below 1.5 kg.
+        assert_eq!(ids(Some(31.0), Some(1.5)), ["term-neonate"]);
+        // Unknown birth weight: the higher limits, and the basis says so.
+        let c = choose(&r, birth, &when, Some(28.0), None, None).unwrap();
+        assert_eq!(c.candidates[0].id, "term-neonate");
+        assert!(c.notes.iter().any(|n| n.contains("Birth weight is not recorded") && n.contains("born at 28 weeks")));
+        let ionized: Vec<f64> = [ids(Some(28.0), Some(1.1)), ids(Some(35.0), Some(2.6))]
+            .iter()
+            .map(|v| r.bands.iter().find(|b| b.id == v[0]).unwrap().ionized.lower)
+            .collect();
+        assert_eq!(ionized, [1.0, 1.1]);
+        // Older than 28 days: the birth weight no longer matters.
+        assert_eq!(
+            choose(&r, birth, &on(2027, 1, 15), Some(28.0), None, Some(1.1)).unwrap().candidates[0].id,
+            "infant"
+        );
     }
 
     #[test]
     fn partial_birth_dates_never_give_neonatal_bands() {
         let r = rules();
         // Born "2026-11": on 2026-11-30 the baby is 0-29 days old.
-        let choice = choose(&r, PartialDate::YearMonth(2026, 11), &on(2026, 11, 30), None, None).unwrap();
+        let choice = choose(&r, PartialDate::YearMonth(2026, 11), &on(2026, 11, 30), None, None, None).unwrap();
         let ids: Vec<&str> = choice.candidates.iter().map(|b| b.id.as_str()).collect();
         assert_eq!(ids, ["infant"]);
         assert!(choice.notes.iter().any(|n| n.contains("Neonatal ranges need a full birth date")));
@@ -194,6 +248,9 @@ mod tests {
     #[test]
     fn a_birth_date_after_the_result_is_refused() {
         let r = rules();
-        assert_eq!(choose(&r, full(2026, 12, 1), &on(2026, 11, 30), None, None).unwrap_err(), NoBand::BornAfterResult);
+        assert_eq!(
+            choose(&r, full(2026, 12, 1), &on(2026, 11, 30), None, None, None).unwrap_err(),
+            NoBand::BornAfterResult
+        );
     }
 }

@@ -112,9 +112,21 @@ const SAFETY_CHECKS: &[(&str, &str, &str, Applies)] = &[
     ),
     ("weight", "treatment.weight, growth_policy", "Is there a current, plausible weight to dose by?", Applies::WhenLow),
     (
+        "weight-confirm",
+        "growth_policy, preterm_references",
+        "Is the dosing weight below the term reference with no gestational age recorded (used, to be confirmed)?",
+        Applies::WhenLow,
+    ),
+    (
         "daily-maximum",
         "treatment.infusion, dose_sources",
         "Would what was given in 24 h plus the proposed infusion pass the daily maximum?",
+        Applies::WithIvCalcium,
+    ),
+    (
+        "fluid-load",
+        "treatment.neonatal_fluid",
+        "Does the calcium infusion take a large share of a neonate's daily fluid allowance?",
         Applies::WithIvCalcium,
     ),
     ("digoxin", "safety_sources.digoxin", "Is digoxin recorded with IV calcium proposed?", Applies::WithIvCalcium),
@@ -274,6 +286,10 @@ fn status_steps(rules: &RuleSet, a: &Assessment, steps: &mut Vec<Step>) {
         num(f.interval.upper, 2),
         f.interval.source
     );
+    for note in &f.interval.band_notes {
+        s.basis.push(' ');
+        s.basis.push_str(note);
+    }
     s.result = match f.classification {
         Classification::Low => "below the interval: hypocalcemia".to_owned(),
         Classification::Normal => "inside the interval".to_owned(),
@@ -421,11 +437,15 @@ fn treatment_steps(rules: &RuleSet, a: &Assessment, plan: &TreatmentPlan, steps:
     if low {
         let mut s = step(Stage::Treatment, "treatment.weight, growth_policy", "Which weight are doses based on?");
         s.basis = format!(
-            "a weight no older than {} days ({}), plausible for the age: |weight-for-age z| <= {} ({})",
+            "a weight no older than {} days ({}), plausible for the age: |weight-for-age z| <= {} ({}); born before {} weeks: judged by postmenstrual age on the preterm table, then by corrected age ({}); refused only below {} kg ({}), as a unit slip, or beyond the limit even for the earliest gestation the preterm table covers when gestation is not recorded",
             num(rules.treatment.weight.max_age_days, 0),
             rules.treatment.weight.source,
             num(rules.growth_policy.implausible_abs_z, 0),
-            rules.growth_policy.implausible_source
+            rules.growth_policy.implausible_source,
+            num(rules.growth_policy.preterm_below_weeks, 0),
+            rules.growth_policy.preterm_source,
+            super::treatment::num_trim(rules.growth_policy.lightest_possible_kg),
+            rules.growth_policy.lightest_possible_source
         );
         match &plan.weight {
             Some(w) => {
@@ -435,13 +455,17 @@ fn treatment_steps(rules: &RuleSet, a: &Assessment, plan: &TreatmentPlan, steps:
                 ));
                 s.result = match &w.z {
                     Some(z) => format!(
-                        "{} kg used (weight-for-age z {}, {})",
+                        "{} kg used (weight z {}, {} {})",
                         super::treatment::num_trim(w.kg),
                         num(z.z, 1),
-                        z.reference
+                        z.reference,
+                        z.age_text
                     ),
                     None => format!("{} kg used", super::treatment::num_trim(w.kg)),
                 };
+                if let Some(c) = &w.caution {
+                    s.result.push_str(&format!("; to be confirmed: {c}"));
+                }
             }
             None => {
                 s.result = plan

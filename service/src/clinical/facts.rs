@@ -37,6 +37,7 @@ pub enum Analyte {
     Lipase,
     CreatineKinase,
     GestationalAgeAtBirth,
+    BirthWeight,
 }
 
 impl Analyte {
@@ -65,6 +66,7 @@ impl Analyte {
             Self::Lipase => "lipase",
             Self::CreatineKinase => "creatine_kinase",
             Self::GestationalAgeAtBirth => "gestational_age_at_birth",
+            Self::BirthWeight => "birth_weight",
         }
     }
 }
@@ -367,6 +369,8 @@ pub struct Facts {
     pub vascular_access: VascularAccess,
     /// Gestational age at birth in weeks, if recorded.
     pub gestational_age_weeks: Option<f64>,
+    /// Birth weight in kg, if recorded.
+    pub birth_weight_kg: Option<f64>,
     /// Evaluation time, unix seconds.
     pub now: i64,
     /// Specimen problems found on results (used or set aside).

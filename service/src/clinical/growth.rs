@@ -14,7 +14,7 @@
 //! would reach +5 only near 376 kg; measured in tests/reference/growth).
 
 use crate::rules::model::RuleSet;
-use crate::rules::treatment_model::GrowthReference;
+use crate::rules::treatment_model::{GrowthReference, PretermReference};
 
 /// A z-score and the table it came from.
 #[derive(Debug, Clone, PartialEq)]
@@ -29,6 +29,8 @@ pub struct ZScore {
     pub reference: String,
     /// Interpolated M (median), kg.
     pub median: f64,
+    /// The age the reference was read at, as text ("at 27.4 weeks postmenstrual age").
+    pub age_text: String,
 }
 
 /// L, M, S at an age, interpolated; `None` outside the table.
@@ -100,6 +102,7 @@ pub fn weight_for_age_z(rules: &RuleSet, sex: &str, age_months: f64, weight_kg: 
             check_method: "WHO LMS z (restricted beyond |z| > 3)",
             reference: table.label.clone(),
             median: m,
+            age_text: format!("at age {} months", super::format::num(age_months, 1)),
         }
     } else {
         ZScore {
@@ -108,11 +111,112 @@ pub fn weight_for_age_z(rules: &RuleSet, sex: &str, age_months: f64, weight_kg: 
             check_method: "CDC modified z",
             reference: table.label.clone(),
             median: m,
+            age_text: format!("at age {} months", super::format::num(age_months, 1)),
         }
     })
 }
 
+/// L, M, S at a postmenstrual age on a preterm table, interpolated linearly; `None` outside it.
+pub fn preterm_lms_at(table: &PretermReference, weeks: f64) -> Option<(f64, f64, f64)> {
+    let as_months = GrowthReference {
+        id: table.id.clone(),
+        label: table.label.clone(),
+        sex: table.sex.clone(),
+        measure: table.measure.clone(),
+        from_months: table.from_weeks,
+        until_months: table.until_weeks,
+        source: String::new(),
+        rows: table.rows.clone(),
+    };
+    lms_at(&as_months, weeks)
+}
+
+/// Weight z for a baby born at `gestation_weeks` (UK-WHO): below
+/// `preterm_below_weeks`, the preterm table by postmenstrual age up to
+/// `preterm_table_until_weeks`, then the term references by corrected age;
+/// otherwise (term, or gestation unknown: `None`) the term references by
+/// chronological age. Plain LMS z on the preterm table (as rcpchgrowth).
+pub fn weight_z(
+    rules: &RuleSet,
+    sex: &str,
+    age_days: i64,
+    gestation_weeks: Option<f64>,
+    weight_kg: f64,
+) -> Option<ZScore> {
+    let p = &rules.growth_policy;
+    let Some(ga) = gestation_weeks.filter(|g| *g < p.preterm_below_weeks) else {
+        return weight_for_age_z(rules, sex, months_from_days(age_days), weight_kg);
+    };
+    let pma = ga + age_days as f64 / 7.0;
+    if pma < p.preterm_table_until_weeks {
+        let table = rules
+            .preterm_references
+            .iter()
+            .find(|t| t.sex == sex && t.measure == "weight" && pma >= t.from_weeks && pma <= t.until_weeks)?;
+        let (l, m, s) = preterm_lms_at(table, pma)?;
+        let z = lms_z(weight_kg, l, m, s);
+        return Some(ZScore {
+            z,
+            check_z: z,
+            check_method: "LMS z on the preterm table",
+            reference: table.label.clone(),
+            median: m,
+            age_text: format!(
+                "at {} weeks postmenstrual age (born at {} weeks)",
+                super::format::num(pma, 1),
+                super::format::num(ga, 1)
+            ),
+        });
+    }
+    let corrected_days = age_days as f64 - (p.term_weeks - ga) * 7.0;
+    let months = corrected_days.max(0.0) / DAYS_PER_MONTH;
+    let mut z = weight_for_age_z(rules, sex, months, weight_kg)?;
+    z.age_text = format!(
+        "at corrected age {} months (born at {} weeks)",
+        super::format::num(months, 1),
+        super::format::num(ga, 1)
+    );
+    Some(z)
+}
+
+/// The earliest gestation any preterm table covers (weeks), for a baby whose gestation is not recorded.
+pub fn earliest_gestation(rules: &RuleSet) -> Option<f64> {
+    rules.preterm_references.iter().map(|t| t.from_weeks).reduce(f64::min)
+}
+
+/// Days in a mean Gregorian month.
+const DAYS_PER_MONTH: f64 = 30.4375;
+
 /// Age in months from days (mean Gregorian month, 30.4375 days).
 pub fn months_from_days(days: i64) -> f64 {
-    days as f64 / 30.4375
+    days as f64 / DAYS_PER_MONTH
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::clinical::testing::{close, shared_rules};
+
+    #[test]
+    fn preterm_babies_use_the_preterm_table_until_42_weeks_then_corrected_age() {
+        let r = shared_rules();
+        // Born at 30 weeks, 83 days old: 30 + 83/7 = 41.857 weeks, still the preterm table.
+        let z = weight_z(r, "male", 83, Some(30.0), 3.5).unwrap();
+        assert!(z.age_text.contains("41.9 weeks postmenstrual"), "{}", z.age_text);
+        // 84 days old: 42 weeks, so WHO by corrected age: 84 - (40 - 30) x 7 = 14 days
+        // = 14 / 30.4375 = 0.459959 months. WHO boys rows 0 [0.3487, 3.3464, 0.14602] and
+        // 1 [0.2297, 4.4709, 0.13395]: L = 0.293965, M = 3.863624, S = 0.140468.
+        // z = ((3.5 / 3.863624)^0.293965 - 1) / (0.293965 x 0.140468)
+        //   = (0.971362 - 1) / 0.041293 = -0.6935.
+        let z = weight_z(r, "male", 84, Some(30.0), 3.5).unwrap();
+        assert!(close(z.z, -0.6935, 0.001), "{}", z.z);
+        assert!(z.age_text.contains("corrected age 0.5 months"), "{}", z.age_text);
+        // Term (37 weeks and over) or unknown: chronological age, as before.
+        let term = weight_for_age_z(r, "male", months_from_days(84), 3.5).unwrap();
+        assert_eq!(weight_z(r, "male", 84, Some(38.0), 3.5).unwrap(), term);
+        assert_eq!(weight_z(r, "male", 84, None, 3.5).unwrap(), term);
+        // Born at 22 weeks, day 2: 22.3 weeks is before the table starts.
+        assert!(weight_z(r, "female", 2, Some(22.0), 0.5).is_none());
+        assert_eq!(earliest_gestation(r), Some(23.0));
+    }
 }

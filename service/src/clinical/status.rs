@@ -94,6 +94,8 @@ pub struct IntervalUsed {
     pub band_id: String,
     /// Band label.
     pub band_label: String,
+    /// Why this band (birth weight, gestation, partial birth date), as the band choice said.
+    pub band_notes: Vec<String>,
     /// Lower limit, mmol/L.
     pub lower: f64,
     /// Upper limit, mmol/L.
@@ -375,6 +377,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         &calcium.when,
         facts.gestational_age_weeks,
         facts.patient.birth_instant,
+        facts.birth_weight_kg,
     ) {
         Ok(c) => c,
         Err(NoBand::BornAfterResult) => {
@@ -450,6 +453,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
     let used = IntervalUsed {
         band_id: band.id.clone(),
         band_label: band.label.clone(),
+        band_notes: choice.notes.clone(),
         lower: interval.lower,
         upper: interval.upper,
         source: interval.source.clone(),
@@ -595,6 +599,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         d.interval = Some(IntervalUsed {
             band_id: band.id.clone(),
             band_label: band.label.clone(),
+            band_notes: choice.notes.clone(),
             lower: band.adjusted.lower,
             upper: band.adjusted.upper,
             source: band.adjusted.source.clone(),

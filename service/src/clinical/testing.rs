@@ -88,6 +88,7 @@ pub fn facts(birth: Option<PartialDate>, measurements: Vec<Measurement>) -> Fact
         events: Vec::new(),
         vascular_access: Default::default(),
         gestational_age_weeks: None,
+        birth_weight_kg: None,
         now: now(),
         specimen: Vec::new(),
     }

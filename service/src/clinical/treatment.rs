@@ -30,6 +30,8 @@ pub struct Weight {
     pub when_text: String,
     /// Weight-for-age z (None when the sex is not recorded: both were checked).
     pub z: Option<growth::ZScore>,
+    /// A caution to show with the doses (weight used, but to be confirmed).
+    pub caution: Option<String>,
 }
 
 /// Route of a proposal.
@@ -192,7 +194,104 @@ fn round_to(v: f64, step: f64) -> f64 {
     if step > 0.0 { (v / step).round() * step } else { v }
 }
 
-/// Pick the dosing weight and check it.
+/// How a weight compares with the growth references.
+enum Verdict {
+    /// Within the limit for at least one possible sex.
+    Plausible(Vec<growth::ZScore>),
+    /// Below the term reference limit, gestation not recorded, within the limit
+    /// had the baby been born preterm at one of `weeks` (whole weeks from the
+    /// earliest the preterm table covers); `preterm` is the z nearest the median among them.
+    LowUnlessPreterm { term: growth::ZScore, preterm: growth::ZScore, weeks: (f64, f64) },
+    /// Beyond the limit above.
+    High(growth::ZScore),
+    /// Beyond the limit below (for the recorded gestation, or even for the earliest one).
+    Low(growth::ZScore),
+    /// No reference covers the age.
+    NoReference,
+}
+
+fn verdict(rules: &RuleSet, facts: &Facts, ctx: &Context, kg: f64) -> Verdict {
+    let limit = rules.growth_policy.implausible_abs_z;
+    let sexes: &[&str] = match ctx.gender {
+        Gender::Male => &["male"],
+        Gender::Female => &["female"],
+        _ => &["male", "female"],
+    };
+    let days = ctx.age_min.days;
+    let ga = facts.gestational_age_weeks;
+    let zs: Vec<growth::ZScore> = sexes.iter().filter_map(|s| growth::weight_z(rules, s, days, ga, kg)).collect();
+    let Some(first) = zs.first().cloned() else {
+        return Verdict::NoReference;
+    };
+    // Implausible only when implausible for every sex it could be checked for.
+    if zs.iter().any(|z| z.check_z.abs() <= limit) {
+        return Verdict::Plausible(zs);
+    }
+    if zs.iter().all(|z| z.check_z > limit) {
+        return Verdict::High(first);
+    }
+    if ga.is_none()
+        && let Some(earliest) = growth::earliest_gestation(rules)
+    {
+        // Every whole week of preterm gestation the tables cover.
+        let mut fits: Vec<(f64, growth::ZScore)> = Vec::new();
+        let mut week = earliest;
+        while week < rules.growth_policy.preterm_below_weeks {
+            if let Some(z) = sexes
+                .iter()
+                .filter_map(|s| growth::weight_z(rules, s, days, Some(week), kg))
+                .find(|z| z.check_z.abs() <= limit)
+            {
+                fits.push((week, z));
+            }
+            week += 1.0;
+        }
+        if let (Some((from, _)), Some((until, _))) = (fits.first(), fits.last()) {
+            let weeks = (*from, *until);
+            // The example shown: the gestation where the weight is nearest the median.
+            let closest = fits
+                .into_iter()
+                .map(|(_, z)| z)
+                .min_by(|a, b| a.check_z.abs().total_cmp(&b.check_z.abs()))
+                .unwrap_or_else(|| first.clone());
+            return Verdict::LowUnlessPreterm { term: first, preterm: closest, weeks };
+        }
+    }
+    Verdict::Low(first)
+}
+
+/// "z = -6.3 (WHO ..., at age 0.1 months; median 3.3 kg)".
+fn z_text(z: &growth::ZScore) -> String {
+    format!(
+        "z = {} ({} {}; {} {}; median {} kg)",
+        num(z.z, 1),
+        z.check_method,
+        num(z.check_z, 1),
+        z.reference,
+        z.age_text,
+        num(z.median, 2)
+    )
+}
+
+/// A reading of a weight slip that makes the weight plausible: "grams entered as kilograms (1.1 kg)".
+fn slip(rules: &RuleSet, facts: &Facts, ctx: &Context, kg: f64, factors: &[(f64, &str)]) -> Option<String> {
+    factors.iter().find_map(|(f, what)| {
+        let v = kg * f;
+        (v >= rules.growth_policy.lightest_possible_kg
+            && matches!(verdict(rules, facts, ctx, v), Verdict::Plausible(_) | Verdict::LowUnlessPreterm { .. }))
+        .then(|| format!("{what} ({} kg would be plausible)", num_trim_sig(v)))
+    })
+}
+
+/// A weight with up to 3 decimals (small babies), trailing zeros dropped.
+fn num_trim_sig(v: f64) -> String {
+    let s = format!("{v:.3}");
+    s.trim_end_matches('0').trim_end_matches('.').to_owned()
+}
+
+/// Pick the dosing weight and check it. Refused only when physically
+/// impossible or an evident unit slip; a low weight that only an unrecorded
+/// preterm birth explains is used with a caution (`Weight::caution`).
 pub fn dosing_weight(rules: &RuleSet, facts: &Facts, ctx: &Context) -> Result<Weight, String> {
     let limit = facts.now - (rules.treatment.weight.max_age_days * 86_400.0).round() as i64;
     let all = facts.of(Analyte::BodyWeight);
@@ -208,35 +307,108 @@ pub fn dosing_weight(rules: &RuleSet, facts: &Facts, ctx: &Context) -> Result<We
             rules.treatment.weight.source
         ));
     }
-    let months = growth::months_from_days(ctx.age_min.days);
-    let limit_z = rules.growth_policy.implausible_abs_z;
-    let sexes: &[&str] = match ctx.gender {
-        Gender::Male => &["male"],
-        Gender::Female => &["female"],
-        _ => &["male", "female"],
+    let gp = &rules.growth_policy;
+    let kg = w.value;
+    let limit_z = gp.implausible_abs_z;
+    let shown = num_trim_sig(kg);
+    if kg < gp.lightest_possible_kg {
+        let why = slip(rules, facts, ctx, kg, &[(1000.0, "kilograms entered as grams")]);
+        return Err(match why {
+            Some(why) => format!(
+                "Unit slip: the weight {shown} kg is physically impossible (below {} kg, {}) and looks like {why}. Check the unit and re-record the weight.",
+                num_trim(gp.lightest_possible_kg),
+                gp.lightest_possible_source
+            ),
+            None => format!(
+                "Physically impossible weight: {shown} kg is below {} kg ({}). Check and re-record the weight.",
+                num_trim(gp.lightest_possible_kg),
+                gp.lightest_possible_source
+            ),
+        });
+    }
+    let make = |z: Option<growth::ZScore>, caution: Option<String>| Weight {
+        kg,
+        source: w.source.clone(),
+        when_text: w.when_text.clone(),
+        z,
+        caution,
     };
-    let zs: Vec<growth::ZScore> =
-        sexes.iter().filter_map(|s| growth::weight_for_age_z(rules, s, months, w.value)).collect();
-    if zs.is_empty() {
-        return Err("No weight-for-age reference covers this age; the weight cannot be checked.".to_owned());
+    match verdict(rules, facts, ctx, kg) {
+        Verdict::Plausible(zs) => {
+            let z = if zs.len() == 1 { zs.into_iter().next() } else { None };
+            Ok(make(z, None))
+        }
+        Verdict::LowUnlessPreterm { term, preterm, weeks } => Ok(make(
+            None,
+            Some(format!(
+                "The weight {shown} kg is beyond the limit |z| > {} for a baby born at term ({}) and the gestational age at birth is not recorded. It is within the limit for a baby born preterm at {} weeks (closest to the median: {}). Doses below use {shown} kg. Confirm the weight and record the gestational age at birth (LOINC 76516-4) so the weight can be judged against it ({}; {}).",
+                num_trim(limit_z),
+                z_text(&term),
+                if weeks.0 == weeks.1 {
+                    num_trim(weeks.0)
+                } else {
+                    format!("{}-{}", num_trim(weeks.0), num_trim(weeks.1))
+                },
+                z_text(&preterm),
+                gp.implausible_source,
+                gp.preterm_source
+            )),
+        )),
+        Verdict::High(z) => {
+            let grams = slip(rules, facts, ctx, kg, &[(0.001, "grams entered as kilograms")]);
+            let decimal = slip(rules, facts, ctx, kg, &[(0.1, "a misplaced decimal point")]);
+            Err(match (grams, decimal) {
+                (Some(why), _) => format!(
+                    "Unit slip: the weight {shown} kg is impossible for the age ({}; limit |z| > {}, {}) and looks like {why}. Check the unit and re-record the weight.",
+                    z_text(&z),
+                    num_trim(limit_z),
+                    gp.implausible_source
+                ),
+                (None, hint) => format!(
+                    "Implausible weight for the age, taken as an entry error: {shown} kg is far above the reference ({}; limit |z| > {}, {}).{} Check and re-record the weight.",
+                    z_text(&z),
+                    num_trim(limit_z),
+                    gp.implausible_source,
+                    hint.map(|h| format!(" It may be {h}.")).unwrap_or_default()
+                ),
+            })
+        }
+        Verdict::Low(z) => {
+            let why = slip(rules, facts, ctx, kg, &[(10.0, "a misplaced decimal point")]);
+            let gestation = match facts.gestational_age_weeks {
+                Some(_) => " Either the weight or the recorded gestational age at birth is wrong.".to_owned(),
+                None => format!(
+                    " It stays beyond the limit had the baby been born preterm at any whole week from {} weeks.",
+                    num_trim(growth::earliest_gestation(rules).unwrap_or_default())
+                ),
+            };
+            Err(format!(
+                "Implausible weight for the age, taken as an entry error: {shown} kg is far below the reference ({}; limit |z| > {}, {}).{gestation}{} Check and re-record the weight.",
+                z_text(&z),
+                num_trim(limit_z),
+                gp.implausible_source,
+                why.map(|h| format!(" It may be {h}.")).unwrap_or_default()
+            ))
+        }
+        Verdict::NoReference => {
+            let born_early = facts
+                .gestational_age_weeks
+                .zip(growth::earliest_gestation(rules))
+                .is_some_and(|(ga, earliest)| ga < earliest);
+            if born_early {
+                Ok(make(
+                    None,
+                    Some(format!(
+                        "Born before {} weeks, where no weight reference starts, so the weight {shown} kg could only be checked against the physical floor of {} kg. Doses below use it: confirm the weight.",
+                        num_trim(growth::earliest_gestation(rules).unwrap_or_default()),
+                        num_trim(gp.lightest_possible_kg)
+                    )),
+                ))
+            } else {
+                Err("No weight-for-age reference covers this age; the weight cannot be checked.".to_owned())
+            }
+        }
     }
-    // Implausible only when implausible for every sex it could be checked for.
-    if zs.iter().all(|z| z.check_z.abs() > limit_z) {
-        let z = &zs[0];
-        return Err(format!(
-            "The weight {} kg is implausible for the age (weight-for-age z = {}, {} {}; median {} kg; {}; limit |z| > {} ({})). It may be a unit or entry error. Check and re-record the weight.",
-            num_trim(w.value),
-            num(z.z, 1),
-            z.check_method,
-            num(z.check_z, 1),
-            num(z.median, 1),
-            z.reference,
-            num_trim(limit_z),
-            rules.growth_policy.implausible_source
-        ));
-    }
-    let z = if zs.len() == 1 { zs.into_iter().next() } else { None };
-    Ok(Weight { kg: w.value, source: w.source.clone(), when_text: w.when_text.clone(), z })
 }
 
 fn events_in<'f>(facts: &'f Facts, list: &str, kind: EventKind) -> Vec<&'f CodedEvent> {
@@ -290,6 +462,17 @@ pub fn plan(
             });
         }
         Ok(w) => {
+            if let Some(caution) = &w.caution {
+                plan.issues.push(SafetyIssue {
+                    key: "weight-confirm",
+                    act_code: Some(("DOSE", "Dosage problem")),
+                    severity: IssueSeverity::Moderate,
+                    title: "Confirm the weight (and gestation) the doses use".into(),
+                    detail: caution.clone(),
+                    implicated: vec![w.source.clone()],
+                    mitigation: "Re-weigh the baby and record the gestational age at birth; recalculate the doses if either changes.".into(),
+                });
+            }
             if mg_low && let Some(p) = magnesium(rules, &ctx, w) {
                 plan.proposals.push(p);
             }
@@ -521,6 +704,7 @@ fn infusion(
         num_trim(mg_h_given * 24.0),
         inf.monitoring
     );
+    fluid_load(rules, ctx, w, ml_h, &mut text, issues);
     if !already.counted.is_empty() || !already.uncounted.is_empty() {
         text.push_str(&format!(
             " Already given in the last 24 h: {} mg recorded in {} administration(s){}{}.",
@@ -573,6 +757,51 @@ fn infusion(
         alternative: false,
         specialist: false,
     })
+}
+
+/// The infusion's fluid volume in mL/kg/day, and for a neonate its share of
+/// the day's fluid allowance, with a WARNING when the share is large.
+fn fluid_load(rules: &RuleSet, ctx: &Context, w: &Weight, ml_h: f64, text: &mut String, issues: &mut Vec<SafetyIssue>) {
+    let per_kg_day = ml_h * 24.0 / w.kg;
+    text.push_str(&format!(
+        " Fluid: {} mL/h x 24 h / {} kg = {} mL/kg/day.",
+        num_trim(ml_h),
+        num_trim(w.kg),
+        num(per_kg_day, 1)
+    ));
+    let nf = &rules.treatment.neonatal_fluid;
+    if !ctx.neonate() || nf.allowance_ml_per_kg_day.is_empty() {
+        return;
+    }
+    // Day of life 1 is the first 24 h; the youngest possible age gives the smallest allowance.
+    let index = usize::try_from(ctx.age_min.days.max(0)).unwrap_or(0).min(nf.allowance_ml_per_kg_day.len() - 1);
+    let allowance = nf.allowance_ml_per_kg_day[index];
+    let share = per_kg_day / allowance;
+    let phrase = format!(
+        "{} mL/kg/day is {}% of the day-{} fluid allowance of {} mL/kg/day ({})",
+        num(per_kg_day, 1),
+        num(share * 100.0, 0),
+        ctx.age_min.days + 1,
+        num_trim(allowance),
+        nf.allowance_source
+    );
+    text.push_str(&format!(" For this neonate {phrase}."));
+    if share >= nf.warn_share {
+        issues.push(SafetyIssue {
+            key: "fluid-load",
+            act_code: None,
+            severity: IssueSeverity::Moderate,
+            title: "Fluid load of the calcium infusion".into(),
+            detail: format!(
+                "The proposed calcium infusion alone is {} mL/h: {phrase}; the warning is set at {}% ({}).",
+                num_trim(ml_h),
+                num(nf.warn_share * 100.0, 0),
+                nf.warn_share_source
+            ),
+            implicated: vec![w.source.clone()],
+            mitigation: "Count the calcium infusion within the day's total fluid prescription, or give the daily calcium as an additive to the maintenance fluid as neonatal units commonly do, per local protocol.".into(),
+        });
+    }
 }
 
 fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
@@ -1307,8 +1536,17 @@ mod tests {
             assert!(p.proposals.is_empty(), "{kg:?}: {:?}", p.proposals.iter().map(|x| x.key).collect::<Vec<_>>());
             let issue = p.issues.iter().find(|i| i.key == "weight").expect("a weight issue");
             assert_eq!(issue.severity, IssueSeverity::High);
-            if kg.is_some() {
-                assert!(issue.detail.contains("implausible") && issue.detail.contains("z ="), "{}", issue.detail);
+            if let Some(kg) = kg {
+                // 95 kg at 7 years: too heavy, and 9.5 kg would be too light: implausible.
+                // 4 kg at 7 years: 40 kg would be plausible: a misplaced decimal point.
+                assert!(
+                    issue.detail.contains("Implausible weight for the age") && issue.detail.contains("z ="),
+                    "{}",
+                    issue.detail
+                );
+                if kg < 50.0 {
+                    assert!(issue.detail.contains("It may be a misplaced decimal point (40 kg"), "{}", issue.detail);
+                }
             }
         }
         // A stale weight (8 days old).
@@ -1323,6 +1561,102 @@ mod tests {
         let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
         assert!(p.proposals.is_empty());
         assert!(p.issues.iter().any(|i| i.key == "weight" && i.detail.contains("older than 7 days")));
+    }
+
+    /// A seizing neonate born `days` ago with ionized 0.6 mmol/L and a weight of `kg`.
+    fn neonate_plan(days: i64, gender: Gender, gestation: Option<f64>, kg: f64) -> TreatmentPlan {
+        let r = shared_rules();
+        let mut facts = facts_of(born_days_ago(days), gender, vec![ionized(0.6, 1, "ica"), weight(kg)], vec![]);
+        facts.gestational_age_weeks = gestation;
+        facts.symptoms.push(seizure(Some(2)));
+        let a = status::assess(&facts, r);
+        plan(r, &facts, &a.finding.expect("finding"), None).expect("a plan")
+    }
+
+    #[test]
+    fn a_27_week_baby_of_1_kg_on_day_3_is_dosed_against_the_preterm_table() {
+        // Born at 27 weeks, 3 days old: 27 + 3/7 = 27.4286 weeks postmenstrual age.
+        // UK-WHO preterm boys, rows 27 [1.061, 1.0364, 0.17355] and 28 [1.04, 1.1577, 0.17663];
+        // t = 3/7: L = 1.052, M = 1.088386, S = 0.174870.
+        // z = ((1.0 / 1.088386)^1.052 - 1) / (1.052 x 0.174870) = (0.914754 - 1) / 0.183963 = -0.4634
+        // (rcpchgrowth 4.6.5 with cubic interpolation: -0.4573, tests/reference/growth).
+        let p = neonate_plan(3, Gender::Male, Some(27.0), 1.0);
+        let w = p.weight.as_ref().expect("a dosing weight");
+        let z = w.z.as_ref().expect("a z");
+        assert!(close(z.z, -0.4634, 0.0005), "{}", z.z);
+        assert!(z.age_text.contains("27.4 weeks postmenstrual"), "{}", z.age_text);
+        assert!(w.caution.is_none());
+        assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"));
+        assert!(!p.issues.iter().any(|i| i.key == "weight" || i.key == "weight-confirm"));
+        // On the term chart (WHO, day 3) the same baby is far below -5: what used to refuse him.
+        let term = growth::weight_for_age_z(shared_rules(), "male", growth::months_from_days(3), 1.0).unwrap();
+        assert!(term.check_z < -5.0, "{}", term.check_z);
+    }
+
+    #[test]
+    fn a_low_weight_neonate_without_a_recorded_gestation_gets_the_bolus_and_a_warning() {
+        let p = neonate_plan(3, Gender::Female, None, 1.1);
+        assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"), "{:?}", p.issues);
+        let i = p.issues.iter().find(|i| i.key == "weight-confirm").expect("a confirm-weight caution");
+        assert_eq!(i.severity, IssueSeverity::Moderate);
+        assert!(
+            i.detail.contains("gestational age at birth is not recorded") && i.detail.contains("born preterm at"),
+            "{}",
+            i.detail
+        );
+        assert!(!p.issues.iter().any(|i| i.key == "weight"));
+        // The bolus uses 1.1 kg.
+        assert!(find(&p, "calcium-bolus").text.starts_with("1.1 kg x "), "{}", find(&p, "calcium-bolus").text);
+    }
+
+    #[test]
+    fn impossible_weights_and_unit_slips_are_refused_and_named() {
+        let refused = |p: &TreatmentPlan| -> String {
+            assert!(p.proposals.is_empty());
+            let i = p.issues.iter().find(|i| i.key == "weight").expect("a weight issue");
+            assert_eq!(i.severity, IssueSeverity::High);
+            i.detail.clone()
+        };
+        // 1100 "kg" for a 3-day-old: 1100 g = 1.1 kg would be plausible (preterm).
+        let d = refused(&neonate_plan(3, Gender::Female, None, 1100.0));
+        assert!(
+            d.starts_with("No weight-based dose is proposed. Unit slip") && d.contains("grams entered as kilograms"),
+            "{d}"
+        );
+        assert!(d.contains("1.1 kg would be plausible"), "{d}");
+        // 0.15 kg: below the 0.2 kg floor, physically impossible (and 150 kg is no newborn).
+        let d = refused(&neonate_plan(3, Gender::Female, Some(26.0), 0.15));
+        assert!(d.contains("Physically impossible weight: 0.15 kg is below 0.2 kg"), "{d}");
+        // 180 kg at 2 years: 18 kg would be plausible: a misplaced decimal point.
+        let p = run(shared_rules(), born_days_ago(2 * 365 + 10), 0.85, Some(180.0));
+        let d = refused(&p);
+        assert!(
+            d.contains("Implausible weight for the age") && d.contains("It may be a misplaced decimal point (18 kg"),
+            "{d}"
+        );
+        // A 27-week baby of 3.5 kg on day 3 is beyond +5 on the preterm table; 3.5 g is no weight.
+        let d = refused(&neonate_plan(3, Gender::Male, Some(27.0), 3.5));
+        assert!(d.contains("Implausible weight for the age") && d.contains("postmenstrual"), "{d}");
+    }
+
+    #[test]
+    fn the_neonatal_infusion_shows_ml_per_kg_per_day_and_warns_on_the_fluid_share() {
+        // 1.0 kg x 17 mg/kg/h (US label, neonates, low end) = 17 mg/h at 10 mg/mL = 1.7 mL/h;
+        // 1.7 mL/h x 24 h / 1.0 kg = 40.8 mL/kg/day. 3 days old = day of life 4: allowance
+        // 60 mL/kg/day (treatment.neonatal_fluid), 40.8 / 60 = 68% >= 25%: a warning.
+        let p = neonate_plan(3, Gender::Male, Some(27.0), 1.0);
+        let inf = find(&p, "calcium-infusion");
+        assert!(inf.text.contains("Fluid: 1.7 mL/h x 24 h / 1 kg = 40.8 mL/kg/day."), "{}", inf.text);
+        assert!(inf.text.contains("is 68% of the day-4 fluid allowance of 60 mL/kg/day"), "{}", inf.text);
+        let i = p.issues.iter().find(|i| i.key == "fluid-load").expect("a fluid-load warning");
+        assert_eq!(i.severity, IssueSeverity::Moderate);
+        // A 7-year-old: the volume is shown, no neonatal allowance, no warning.
+        let p = run(shared_rules(), seven(), 0.6, Some(22.0));
+        if let Some(inf) = p.proposals.iter().find(|x| x.key == "calcium-infusion") {
+            assert!(inf.text.contains("mL/kg/day."), "{}", inf.text);
+            assert!(!inf.text.contains("fluid allowance"));
+        }
+        assert!(!p.issues.iter().any(|i| i.key == "fluid-load"));
     }
 
     #[test]

@@ -365,6 +365,7 @@ impl<'a> Reader<'a> {
         let mut events = Vec::new();
         let mut gestation = None;
         let mut specimen = Vec::new();
+        let mut birth_weight = None;
         for e in &entries {
             if e.index == patient_index {
                 continue;
@@ -394,6 +395,9 @@ impl<'a> Reader<'a> {
             if m.analyte == Analyte::GestationalAgeAtBirth {
                 gestation = Some(m.value);
                 false
+            } else if m.analyte == Analyte::BirthWeight {
+                birth_weight = Some(m.value);
+                false
             } else {
                 true
             }
@@ -406,6 +410,7 @@ impl<'a> Reader<'a> {
                 events,
                 vascular_access: self.access,
                 gestational_age_weeks: gestation,
+                birth_weight_kg: birth_weight,
                 now: self.now,
                 specimen,
             },

@@ -435,6 +435,19 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
             problems.push(format!("  treatment.safety.{at}.hours: {} is not positive", w.hours));
         }
     }
+    let nf = &t.neonatal_fluid;
+    if nf.allowance_ml_per_kg_day.is_empty()
+        || nf.allowance_ml_per_kg_day.iter().any(|v| !v.is_finite() || *v < 20.0 || *v > 250.0)
+    {
+        problems.push(format!(
+            "  treatment.neonatal_fluid.allowance_ml_per_kg_day: {:?} must be one or more values of 20-250 mL/kg/day",
+            nf.allowance_ml_per_kg_day
+        ));
+    }
+    if !nf.warn_share.is_finite() || nf.warn_share <= 0.0 || nf.warn_share > 1.0 {
+        problems
+            .push(format!("  treatment.neonatal_fluid.warn_share: {} must be above 0 and at most 1", nf.warn_share));
+    }
     if !t.infusion.makeup_ml.is_finite() || t.infusion.makeup_ml <= 0.0 {
         problems.push(format!("  treatment.infusion.makeup_ml: {} is not positive", t.infusion.makeup_ml));
     }

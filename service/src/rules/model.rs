@@ -68,6 +68,8 @@ pub struct RuleSet {
     pub treatment: super::treatment_model::TreatmentPolicy,
     /// Weight-for-age LMS tables.
     pub growth_references: Vec<super::treatment_model::GrowthReference>,
+    /// Preterm weight LMS tables by postmenstrual age.
+    pub preterm_references: Vec<super::treatment_model::PretermReference>,
     /// Growth reference policy.
     pub growth_policy: super::treatment_model::GrowthPolicy,
     /// Calcium gluconate administration limits.
@@ -740,6 +742,12 @@ pub struct AgeBand {
     /// Source of the preterm cut-off.
     #[serde(default)]
     pub preterm_source: Option<String>,
+    /// Only for a recorded birth weight below this, kg.
+    #[serde(default)]
+    pub birth_weight_below_kg: Option<f64>,
+    /// Source of the birth-weight cut-off.
+    #[serde(default)]
+    pub birth_weight_source: Option<String>,
     /// Never chosen from a partial birth date.
     pub needs_full_birth_date: bool,
     /// Ionized calcium interval.

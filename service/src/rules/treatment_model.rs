@@ -438,6 +438,22 @@ pub struct TreatmentPolicy {
     pub vitamin_d: VitaminDPolicy,
     /// Safety.
     pub safety: SafetyPolicy,
+    /// Neonatal fluid allowance (infusion fluid-load check).
+    pub neonatal_fluid: NeonatalFluidPolicy,
+}
+
+/// The daily fluid allowance of a neonate and the share one calcium infusion may take.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NeonatalFluidPolicy {
+    /// mL/kg/day by day of life (day 1 first); the last applies to later days.
+    pub allowance_ml_per_kg_day: Vec<f64>,
+    /// Source.
+    pub allowance_source: String,
+    /// Warn when the infusion takes at least this fraction of the allowance.
+    pub warn_share: f64,
+    /// Source.
+    pub warn_share_source: String,
 }
 
 /// One weight-for-age LMS table.
@@ -462,6 +478,28 @@ pub struct GrowthReference {
     pub rows: Vec<[f64; 4]>,
 }
 
+/// A preterm weight LMS table by postmenstrual age.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct PretermReference {
+    /// Id.
+    pub id: String,
+    /// Label.
+    pub label: String,
+    /// male | female.
+    pub sex: String,
+    /// weight.
+    pub measure: String,
+    /// First postmenstrual age, weeks.
+    pub from_weeks: f64,
+    /// Last postmenstrual age, weeks.
+    pub until_weeks: f64,
+    /// Source.
+    pub source: String,
+    /// Rows [postmenstrual_weeks, L, M, S].
+    pub rows: Vec<[f64; 4]>,
+}
+
 /// Growth policy.
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
@@ -474,4 +512,17 @@ pub struct GrowthPolicy {
     pub implausible_abs_z: f64,
     /// Source.
     pub implausible_source: String,
+    /// Born before this many weeks: judged by postmenstrual / corrected age.
+    pub preterm_below_weeks: f64,
+    /// Term, weeks (corrected age = chronological age - (term - gestation)).
+    pub term_weeks: f64,
+    /// The preterm table is used up to this postmenstrual age, weeks; then the
+    /// term references by corrected age.
+    pub preterm_table_until_weeks: f64,
+    /// Source of the three preterm settings.
+    pub preterm_source: String,
+    /// A weight below this (kg) is physically impossible for a living child.
+    pub lightest_possible_kg: f64,
+    /// Source.
+    pub lightest_possible_source: String,
 }
