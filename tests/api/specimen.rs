@@ -277,5 +277,5 @@ fn a_normal_magnesium_from_a_hemolyzed_sample_does_not_rule_out_a_low_one() {
     assert!(diagnostics(oo).contains("can falsely raise it"), "{}", diagnostics(oo));
     // Both results from the sample are named in the one hemolysis DetectedIssue.
     let detail = issue(&hemolyzed, "specimen-hemolyzed").unwrap()["detail"].as_str().unwrap().to_owned();
-    assert!(detail.contains("Magnesium") && detail.contains("Calcium.ionized"), "{detail}");
+    assert!(detail.contains("Magnesium 0.80 mmol/L") && detail.contains("Ionized calcium 0.85 mmol/L"), "{detail}");
 }

@@ -291,8 +291,8 @@ impl<'a> Reader<'a> {
         flags: &[RawFlag<'a>],
         findings: &mut Vec<SpecimenFinding>,
     ) -> bool {
-        let result_text =
-            format!("{} {} {} at {}", m.code.display, num(m.reported_value, 2), m.reported_unit, m.when_text);
+        let label = self.rules.analyte(m.analyte).map_or(m.code.display.as_str(), |a| a.label.as_str());
+        let result_text = format!("{label} {} {} at {}", num(m.reported_value, 2), m.reported_unit, m.when_text);
         let spec = &self.rules.specimen;
         let mut keep = true;
         for raw in flags {
