@@ -31,6 +31,9 @@
 //! [doses.calcium-bolus]                 # dose per administration within [min, max]
 //! min = 700.0
 //! max = 800.0
+//! [rates.calcium-chloride]              # rate (doseAndRate.rateQuantity) within [min, max]
+//! min = 6.0
+//! max = 7.0
 //! ```
 
 use std::collections::BTreeMap;
@@ -102,6 +105,9 @@ pub struct Expectation {
     /// Dose ranges by proposal key.
     #[serde(default)]
     pub doses: BTreeMap<String, DoseRange>,
+    /// Rate ranges by proposal key (the proposal's rate unit).
+    #[serde(default)]
+    pub rates: BTreeMap<String, DoseRange>,
 }
 
 /// An accepted dose range (the proposal's own unit).
@@ -311,6 +317,20 @@ pub fn compare(engine: &Engine, name: String, body: &[u8], exp: &Expectation) ->
         };
         check(&format!("dose {key}"), want, got);
     }
+    for (key, range) in &exp.rates {
+        let want = format!(
+            "{} to {}",
+            crate::clinical::treatment::num_trim(range.min),
+            crate::clinical::treatment::num_trim(range.max)
+        );
+        let got = match view.rates.get(key) {
+            None => "(no such proposal)".to_owned(),
+            Some(None) => "(no rate)".to_owned(),
+            Some(Some((v, _))) if (range.min..=range.max).contains(v) => want.clone(),
+            Some(Some((v, unit))) => format!("{} {unit}", crate::clinical::treatment::num_trim(*v)),
+        };
+        check(&format!("rate {key}"), want, got);
+    }
     CaseResult { name, checks }
 }
 
@@ -329,6 +349,8 @@ struct View {
     tests: Vec<String>,
     /// Treatment proposals by key: their dose per administration and unit.
     doses: BTreeMap<String, Option<(f64, String)>>,
+    /// Treatment proposals by key: their rate and unit.
+    rates: BTreeMap<String, Option<(f64, String)>>,
     /// Safety check keys raised.
     safety: Vec<String>,
     /// DetectedIssue.detail of each safety check raised.
@@ -399,6 +421,9 @@ impl View {
                         let dose = q["value"].as_f64().map(|x| (x, q["unit"].as_str().unwrap_or("").to_owned()));
                         let text = r["dosageInstruction"][0]["text"].as_str().unwrap_or("").to_owned();
                         v.proposal_text.insert(key.clone(), text);
+                        let q = &r["dosageInstruction"][0]["doseAndRate"][0]["rateQuantity"];
+                        let rate = q["value"].as_f64().map(|x| (x, q["unit"].as_str().unwrap_or("").to_owned()));
+                        v.rates.insert(key.clone(), rate);
                         v.doses.insert(key, dose);
                     }
                 }

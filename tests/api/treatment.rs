@@ -277,8 +277,13 @@ async fn symptomatic_hypocalcemia_gets_a_capped_bolus_then_an_infusion() {
     let b = titles.iter().position(|t| t.starts_with(BOLUS)).unwrap();
     let i = titles.iter().position(|t| t.starts_with(INFUSION)).unwrap();
     assert!(b < i, "{titles:?}");
-    // No oral calcium when IV calcium is proposed.
-    assert!(medication_requests(&result).iter().all(|m| route(m) == IV_ROUTE), "{titles:?}");
+    // No oral calcium when IV calcium is proposed; the only oral proposal is the vitamin D
+    // paired with the calcium (the plan states the later step to oral calcium).
+    assert!(proposal(&result, "Oral elemental calcium").is_none(), "{titles:?}");
+    assert!(
+        medication_requests(&result).iter().all(|m| route(m) == IV_ROUTE || text(m).contains("Cholecalciferol")),
+        "{titles:?}"
+    );
 }
 
 // ---------------------------------------------------------------------------
@@ -336,7 +341,10 @@ async fn asymptomatic_mild_hypocalcemia_gets_oral_liquid_calcium_under_6_years()
         treatment_titles(&result)
     );
     let all = medication_requests(&result);
-    assert_eq!(all.len(), 1, "{:?}", treatment_titles(&result));
+    // Oral calcium, and vitamin D paired with it: 25-OH vitamin D is not measured, so the
+    // maintenance dose, 600 IU/day from 1 year (treatment.toml vitamin_d.maintenance; IOM RDA).
+    assert_eq!(all.len(), 2, "{:?}", treatment_titles(&result));
+    assert_eq!(dose(must(&result, "Cholecalciferol")), (600.0, "[iU]".to_owned()));
     let oral = all[0];
     assert_eq!(route(oral), ORAL_ROUTE);
     assert!(
@@ -373,7 +381,8 @@ async fn from_6_years_oral_calcium_is_whole_tablets_with_the_age_upper_limit() {
     let w = weight(&s, 32.0);
     let result = app.assess_ok(&s.add(Lab::IonizedCa, "ica-1", 1.05, 1.0).with(w).bundle()).await;
     let all = medication_requests(&result);
-    assert_eq!(all.len(), 1, "{:?}", treatment_titles(&result));
+    // Oral calcium and the maintenance vitamin D paired with it (25-OH vitamin D not measured).
+    assert_eq!(all.len(), 2, "{:?}", treatment_titles(&result));
     let oral = all[0];
     assert_eq!(route(oral), ORAL_ROUTE);
     assert!(
@@ -782,7 +791,7 @@ async fn low_magnesium_puts_magnesium_sulfate_first() {
     assert!(t.contains("20 kg x 50 mg/kg = 1000 mg magnesium sulfate = 2 mL of Magnesium sulfate 50%"), "{t}");
     // Elemental: 2 mL x 49.3 = 98.6 mg magnesium; 2 x 4.06 = 8.12 mEq.
     assert!(t.contains("98.6 mg elemental magnesium, 8.12 mEq"), "{t}");
-    assert!(t.contains("dilute to 5 mL or more (at most 200 mg/mL) and give over 60 min"), "{t}");
+    assert!(t.contains("dilute to 5 mL or more (at most 200 mg/mL;") && t.contains("and give over 60 min"), "{t}");
     assert_eq!(rate(m), (16.7, "mg/min".to_owned()));
 
     // A normal magnesium (2.0 mg/dL / 2.4305 = 0.82 mmol/L): no magnesium proposal.
@@ -829,7 +838,11 @@ async fn nutritional_vitamin_d_deficiency_gets_cholecalciferol_for_90_days() {
     assert_eq!(repeat["periodUnit"], "d");
     assert_eq!(repeat["boundsDuration"]["value"], 90);
     assert_eq!(repeat["boundsDuration"]["code"], "d");
-    assert!(text(d).starts_with("3000 IU once daily = 7.5 mL of Cholecalciferol"), "{}", text(d));
+    assert!(
+        text(d).contains("3000 IU once daily = 3000 IU / 400 IU per mL = 7.5 mL of Cholecalciferol"),
+        "{}",
+        text(d)
+    );
     assert!(notes(d).iter().any(|n| n.starts_with("Chosen: 3000-6400 IU/d (SPEG")), "{:?}", notes(d));
     assert!(proposal(&result, "Calcitriol").is_none(), "{:?}", treatment_titles(&result));
     assert!(proposal(&result, "Oral elemental calcium").is_some(), "{:?}", treatment_titles(&result));
@@ -876,11 +889,12 @@ async fn every_medication_request_is_an_advisory_draft_proposal() {
     // IV: magnesium, bolus, infusion, chloride (central line).
     let s = symptomatic(aged(6, 60), 20.0);
     let mg = observation(&s, "mg-1", "19123-9", "Magnesium [Mass/volume] in Serum or Plasma", 1.0, "mg/dL", 1.0);
-    requests.push((with_access(&s.with(mg), "central"), 4));
+    // With vitamin D paired to the calcium (25-OH vitamin D not measured: maintenance dose).
+    requests.push((with_access(&s.with(mg), "central"), 5));
     // Oral liquid and tablets.
     for (s, kg) in [(aged(3, 60), 14.0), (aged(10, 60), 32.0)] {
         let w = weight(&s, kg);
-        requests.push((s.add(Lab::IonizedCa, "ica-1", 1.05, 1.0).with(w).bundle(), 1));
+        requests.push((s.add(Lab::IonizedCa, "ica-1", 1.05, 1.0).with(w).bundle(), 2));
     }
     let mut seen = 0;
     for (request, expected) in requests {
@@ -895,6 +909,6 @@ async fn every_medication_request_is_an_advisory_draft_proposal() {
             seen += 1;
         }
     }
-    // 4 + 1 + 1.
-    assert_eq!(seen, 6);
+    // 5 + 2 + 2 (each plan with its vitamin D).
+    assert_eq!(seen, 9);
 }

@@ -681,6 +681,149 @@ proposals_absent = ["calcium-bolus"]
 ''')
 
 # ---------------------------------------------------------------------------
+# IV speed in elemental calcium, phosphate with ionized calcium only, vitamin D with calcium
+# (issue 13, sections 3, 4 and 7). Expectations from the sources named in each case, worked
+# by hand before running: US calcium gluconate label (9.3 mg Ca/mL, <= 100 mg/min in children);
+# Hospira calcium chloride label (27.3 mg Ca/mL, <= 1 mL/min); BNFC (0.5 mL/kg over >= 5 min);
+# KDOQI pediatric CKD bone guideline 2005 (6.2, 7.1-7.5, 9A.1.a); Munns 2016 rickets consensus;
+# SPEG; IOM 2011.
+# ---------------------------------------------------------------------------
+
+LAB["alb"] = ("1751-7", "Albumin [Mass/volume] in Serum or Plasma", "Albumin", "g/dL")  # service/rules/codes.toml
+CONDITION["aki"] = (SCT, "14669001", "Acute renal failure syndrome")  # acute_kidney_injury (cause-codes.toml)
+D25_DRAW = "2026-11-27T08:30:00-05:00"  # a 25-OH vitamin D drawn earlier in the week
+
+c = Case("iv-speed-neonate-central-chloride", "Ashgrove", ["Baby Girl"], "female", "2026-11-20",
+         "2026-11-20T03:10:00-05:00")
+c.lab("ica", 0.66, R).symptom("seizure", SZ).lab("weight", 3.2, W).lab("ga", 39, W)
+c.access = "central"
+write(c, f'''
+description = "Term girl, 10 days old, 3.2 kg, ionized Ca 0.66 mmol/L with a seizure, central line: the calcium chloride alternative is given over a duration that keeps its elemental calcium per minute no faster than the gluconate bolus allows (US calcium gluconate label: 9.3 mg Ca/mL, at most 100 mg/min in children including neonates; BNFC 0.5 mL/kg over at least 5 min = 0.93 mg Ca/kg/min; Hospira calcium chloride label: 27.3 mg Ca/mL, a maximum of 1 mL/min, which is not a duration)."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion", "calcium-chloride"]
+# 25-OH vitamin D not measured: a maintenance vitamin D with the calcium, a liquid, so the drop/mL warning.
+safety_present = ["vitamin-d-liquid"]
+safety_absent = ["extravasation", "arterial-line", "phosphate-high", "caxp", "weight"]
+[doses.calcium-bolus]
+# US label under 1 month, low end: 3.2 kg x 100 mg/kg = 320 mg = 3.2 mL = 29.76 mg elemental Ca.
+min = 319.0
+max = 321.0
+[rates.calcium-bolus]
+# Ceiling: the lower of 9.3 mg Ca/min and 0.93 mg/kg/min x 3.2 kg = 2.976 mg Ca/min -> 29.76 / 2.976
+# = 10 min (the 10-min shortest too): 320 mg / 10 min = 32 mg/min of the salt.
+min = 31.9
+max = 32.1
+[doses.calcium-chloride]
+# AHA PALS 20 mg/kg: 3.2 x 20 = 64 mg = 0.64 mL x 27.3 = 17.47 mg elemental Ca.
+min = 63.9
+max = 64.1
+[rates.calcium-chloride]
+# At the label's 1 mL/min alone: 0.64 mL in 0.64 min = 27.3 mg Ca/min (the old "over at least 1 min":
+# 17.47 mg Ca/min, 5.9 x the gluconate's 2.976). Held to 2.976 mg Ca/min: at least 5.87 min, and the
+# 10-min shortest duration -> 10 min: 64 mg / 10 = 6.4 mg/min of the salt = 1.75 mg Ca/min.
+min = 6.3
+max = 6.5
+''')
+
+c = Case("phosphate-high-aki-ionized-only", "Pembury", ["Lucan"], "male", "2020-05-11")
+(c.lab("ica", 0.86, R).symptom("seizure", SZ).lab("weight", 20.0, W).lab("phos", 3.6, R).lab("creat", 180, R)
+ .condition("aki", "2026-11-28T14:00:00-05:00"))
+c.access = "peripheral"
+write(c, f'''
+description = "Boy 6 y 6 mo with acute kidney injury, ionized Ca 0.86 mmol/L with a seizure and phosphate 3.6 mmol/L, twice the upper limit 1.80 of the 1-16 y range, and no total calcium: the IV bolus and infusion carry the high-phosphate warning (calcium and phosphate precipitate; KDOQI pediatric 7.5: control phosphorus; calcium gluconate label 5.3 calcinosis); the calcium x phosphate product cannot be computed; calcitriol is deferred while the phosphate is high (KDOQI pediatric 9A.1.a)."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+proposals_absent = ["calcium-chloride", "oral-calcium", "calcitriol", "cholecalciferol"]
+safety_present = ["phosphate-high", "extravasation", "calcitriol-deferred"]
+safety_absent = ["caxp", "precipitation", "weight", "vitamin-d-liquid"]
+[doses.calcium-bolus]
+# 20 kg x 50 mg/kg = 1000 mg (the 10 mL cap exactly) = 93 mg elemental Ca.
+min = 999.0
+max = 1001.0
+[rates.calcium-bolus]
+# 93 mg Ca at 9.3 mg Ca/min = 10 min (0.93 x 20 = 18.6 is higher): 1000 / 10 = 100 mg/min.
+min = 99.9
+max = 100.1
+''')
+
+c = Case("phosphate-high-ckd-binder-with-meals", "Thistlewood", ["Maren"], "female", "2017-03-02")
+(c.lab("ica", 1.02, R).lab("weight", 28.0, W).lab("phos", 2.9, R).lab("creat", 220, R).lab("pth", 30.0, R)
+ .condition("ckd", "2024-01-10"))
+write(c, f'''
+description = "Girl 9 y 8 mo with chronic kidney disease, ionized Ca 1.02 mmol/L without symptoms, phosphate 2.9 mmol/L (1.6 x the upper limit 1.80): oral calcium carbonate is proposed as the phosphate binder, given with meals (KDOQI pediatric 6.2: calcium-based binders first; 6.5: at most 2500 mg/day), with the high-phosphate warning; calcitriol is deferred until the phosphate is below the age limit (KDOQI pediatric 9A.1.a)."
+now = "{NOW}"
+proposals = ["oral-calcium"]
+proposals_absent = ["calcium-bolus", "calcitriol", "cholecalciferol"]
+safety_present = ["phosphate-high", "calcitriol-deferred"]
+safety_absent = ["caxp", "weight", "extravasation"]
+[doses.oral-calcium]
+# ZA STG 50 mg/kg/day: 28 x 50 = 1400 mg/day (under 2500, KDOQI; and 3000, IOM 9-18 y) / 4 = 350 mg per
+# dose. Tablets from 6 y: 500 mg is 43% above, 2 x 200 mg 14% above (> 10%), so the liquid: 3.5 mL of
+# 100 mg/mL.
+min = 3.5
+max = 3.5
+''')
+
+c = Case("caxp-albumin-adjusted-adolescent", "Kettleby", ["Sorcha"], "female", "2013-07-15")
+(c.lab("ica", 0.85, R).lab("tca_mg", 8.0, R).lab("alb", 2.0, R).lab("phos", 1.94, R).lab("weight", 45.0, W))
+c.access = "peripheral"
+write(c, f'''
+description = "Girl 13 y 4 mo, ionized Ca 0.85 mmol/L, total calcium 8.0 mg/dL with albumin 2.0 g/dL drawn with it, phosphate 1.94 mmol/L (6.0 mg/dL, above 1.80): the calcium x phosphate product uses the albumin-adjusted total calcium (KDOQI pediatric 7.1-7.3 state calcium as corrected total calcium): 9.6 x 6.0 = 58 mg2/dL2, above the < 55 for adolescents older than 12 (KDOQI 7.5); unadjusted it would be 48 and stay silent."
+now = "{NOW}"
+proposals = ["calcium-bolus"]
+safety_present = ["caxp", "phosphate-high", "extravasation"]
+safety_absent = ["weight", "precipitation"]
+# Adjusted Ca = 8.0 + 0.8 x (4.0 - 2.0) = 9.6 mg/dL (calcium.toml albumin_adjustment); phosphate
+# 1.94 mmol/L x 30.974 / 10 = 6.01 mg/dL; 9.6 x 6.01 = 57.7 > 55.
+[doses.calcium-bolus]
+# 45 kg x 50 mg/kg = 2250 mg, capped at 1000 mg.
+min = 1000.0
+max = 1000.0
+''')
+
+c = Case("vitamin-d-with-oral-calcium-25oh-unknown", "Harbottle", ["Emrys"], "male", "2022-08-09")
+c.lab("ica", 1.05, R).lab("weight", 16.0, W)
+write(c, f'''
+description = "Boy 4 y 3 mo, ionized Ca 1.05 mmol/L without symptoms, 25-OH vitamin D not measured: oral calcium with feeds or meals (ZA STG 'given with meals') paired with vitamin D (Munns 2016 global consensus pairs cholecalciferol with calcium); while 25-OH vitamin D is unknown, the maintenance dose 600 IU/day from 1 year (IOM 2011 RDA), shown in IU and in mL of the 400 IU/mL liquid, with the drop/mL warning."
+now = "{NOW}"
+proposals = ["oral-calcium", "cholecalciferol"]
+proposals_absent = ["calcium-bolus", "calcitriol"]
+safety_present = ["vitamin-d-liquid"]
+safety_absent = ["phosphate-high", "caxp", "weight"]
+[doses.oral-calcium]
+# 16 kg x 50 = 800 mg/day / 4 = 200 mg per dose; under 6 y the liquid: 2 mL of 100 mg/mL.
+min = 2.0
+max = 2.0
+[doses.cholecalciferol]
+# 600 IU once daily = 600 / 400 IU per mL = 1.5 mL.
+min = 600.0
+max = 600.0
+''')
+
+c = Case("vitamin-d-deficient-iv-calcium-first", "Larchmere", ["Ottilie"], "female", "2026-03-25")
+c.lab("ica", 0.80, R).symptom("seizure", SZ).lab("weight", 8.0, W).lab("vitd25", 8.0, D25_DRAW)
+c.access = "peripheral"
+write(c, f'''
+description = "Girl 8 mo, ionized Ca 0.80 mmol/L with a seizure and 25-OH vitamin D 8 ng/mL (20 nmol/L, deficient below 30 nmol/L, Munns 2016): IV calcium first, and the cholecalciferol treatment dose is proposed with it (SPEG 6 months-12 years 3000-6400 IU/day, low end, 90 days), the plan stating the step to oral calcium with vitamin D."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion", "cholecalciferol"]
+proposals_absent = ["oral-calcium"]
+safety_present = ["extravasation", "vitamin-d-liquid"]
+safety_absent = ["phosphate-high", "caxp", "weight"]
+[doses.calcium-bolus]
+# 8 kg x 50 mg/kg = 400 mg.
+min = 399.0
+max = 401.0
+[doses.cholecalciferol]
+# 3000 IU once daily = 7.5 mL of 400 IU/mL.
+min = 3000.0
+max = 3000.0
+''')
+
+# ---------------------------------------------------------------------------
 # Site cases (tests/cases-site, run with --rules tests/cases-site/site-rules.toml).
 # ---------------------------------------------------------------------------
 

@@ -100,6 +100,8 @@ enum Applies {
     WithIvCalciumSaline,
     /// When oral calcium is proposed.
     WithOralCalcium,
+    /// When cholecalciferol is proposed.
+    WithVitaminD,
 }
 
 /// Every safety check of treatment.rs: key, rule data it reads, question.
@@ -170,9 +172,27 @@ const SAFETY_CHECKS: &[(&str, &str, &str, Applies)] = &[
     ("qtc", "qtc.prolonged_above_ms", "Is the QTc prolonged?", Applies::WithIvCalcium),
     (
         "caxp",
-        "treatment.safety.ca_x_p_limits, safety_sources.ca_x_p_under_12y, safety_sources.ca_x_p_over_12y",
-        "Is the calcium-phosphate product above the limit for the age?",
+        "treatment.safety.ca_x_p_limits, treatment.safety.ca_x_p_corrected_calcium, safety_sources.ca_x_p_under_12y, safety_sources.ca_x_p_over_12y",
+        "Is the calcium-phosphate product (total calcium in the window, albumin-adjusted when an albumin was drawn with it) above the limit for the age?",
         Applies::WithCalcium,
+    ),
+    (
+        "phosphate-high",
+        "lab_ranges (phosphate), safety_sources.phosphate_high_with_calcium",
+        "Is the phosphate above the upper limit for the age, with calcium proposed (whether or not a total calcium is measured)?",
+        Applies::WithCalcium,
+    ),
+    (
+        "calcitriol-deferred",
+        "treatment.vitamin_d.calcitriol_deferred_for, lab_ranges (phosphate)",
+        "Would calcitriol be proposed for kidney disease while the phosphate is above the upper limit for the age?",
+        Applies::WhenLow,
+    ),
+    (
+        "vitamin-d-liquid",
+        "treatment.vitamin_d.cholecalciferol_product, safety_sources.vitamin_d_drop_strength_confusion",
+        "Is a liquid vitamin D proposed, where drops and mL can be confused?",
+        Applies::WithVitaminD,
     ),
     (
         "oral-dose-rounding",
@@ -501,6 +521,7 @@ fn treatment_steps(rules: &RuleSet, a: &Assessment, plan: &TreatmentPlan, steps:
     let iv = plan.proposals.iter().any(|p| p.route == Route::Iv && p.key.starts_with("calcium"));
     let oral = plan.proposals.iter().any(|p| p.key == "oral-calcium");
     let any = plan.proposals.iter().any(|p| p.key.starts_with("calcium")) || oral;
+    let vitamin_d = plan.proposals.iter().any(|p| p.key == "cholecalciferol");
     let saline =
         rules.treatment.diluents.iter().find(|d| d.id == rules.treatment.bolus.diluent).is_some_and(|d| d.saline);
     for (key, rule, question, applies) in SAFETY_CHECKS {
@@ -512,6 +533,7 @@ fn treatment_steps(rules: &RuleSet, a: &Assessment, plan: &TreatmentPlan, steps:
             Applies::WithCalcium => any,
             Applies::WithIvCalciumSaline => iv && saline,
             Applies::WithOralCalcium => oral,
+            Applies::WithVitaminD => vitamin_d,
         };
         let raised: Vec<_> = plan.issues.iter().filter(|i| i.key == *key).collect();
         s.result = if let Some(i) = raised.first() {
@@ -525,6 +547,7 @@ fn treatment_steps(rules: &RuleSet, a: &Assessment, plan: &TreatmentPlan, steps:
                 Applies::WhenLow => "not evaluated: the calcium is not low".to_owned(),
                 Applies::WithCalcium => "not evaluated: no calcium is proposed".to_owned(),
                 Applies::WithOralCalcium => "not evaluated: no oral calcium is proposed".to_owned(),
+                Applies::WithVitaminD => "not evaluated: no vitamin D is proposed".to_owned(),
                 Applies::WithIvCalciumSaline if iv => "not evaluated: the site's diluent is not saline".to_owned(),
                 _ => "not evaluated: no IV calcium is proposed".to_owned(),
             }

@@ -17,7 +17,9 @@ use super::growth;
 use super::status::{CalciumFinding, Classification};
 use super::workup::Workup;
 use crate::rules::model::{IssueSeverity, LabOutcome, RuleSet};
-use crate::rules::treatment_model::{Chosen, DoseSource, OralPolicy, Pick, Product, RecencyWindow};
+use crate::rules::treatment_model::{
+    CalciumRateCeiling, Chosen, DoseSource, IvSpeed, OralPolicy, Pick, Product, RecencyWindow,
+};
 
 /// The dosing weight, or why there is none.
 #[derive(Debug, Clone)]
@@ -427,6 +429,140 @@ fn elemental_text(p: &Product, ml: f64) -> String {
     parts.join(", ")
 }
 
+/// The IV speed limits for the age: the span the whole age lies in, or, when the age
+/// straddles a boundary, the strictest of the spans it may lie in (longest shortest
+/// duration, slowest fastest rate).
+fn speed_for(ctx: &Context, list: &[IvSpeed]) -> Option<IvSpeed> {
+    if let Some(s) = list.iter().find(|s| ctx.within(&s.applies) == Some(true)) {
+        return Some(s.clone());
+    }
+    let maybe: Vec<&IvSpeed> = list.iter().filter(|s| ctx.within(&s.applies).is_none()).collect();
+    let mut out = (*maybe.first()?).clone();
+    for s in &maybe[1..] {
+        if s.min_minutes > out.min_minutes {
+            out.min_minutes = s.min_minutes;
+            out.min_minutes_source.clone_from(&s.min_minutes_source);
+        }
+        if s.max_salt_mg_per_min < out.max_salt_mg_per_min {
+            out.max_salt_mg_per_min = s.max_salt_mg_per_min;
+            out.max_rate_source.clone_from(&s.max_rate_source);
+        }
+    }
+    Some(out)
+}
+
+/// The elemental-calcium ceiling for the age (the lowest where the age is uncertain).
+fn calcium_ceiling<'r>(rules: &'r RuleSet, ctx: &Context) -> Option<&'r CalciumRateCeiling> {
+    let list = &rules.treatment.calcium_rate;
+    if let Some(c) = list.iter().find(|c| ctx.within(&c.applies) == Some(true)) {
+        return Some(c);
+    }
+    list.iter()
+        .filter(|c| ctx.within(&c.applies).is_none())
+        .min_by(|a, b| a.max_elemental_mg_per_kg_min.total_cmp(&b.max_elemental_mg_per_kg_min))
+}
+
+/// How long an IV dose takes: the longest of the product's shortest duration, its dose
+/// at its fastest salt rate and, for calcium, its elemental calcium at the common
+/// ceiling; rounded up to whole minutes.
+struct IvTiming {
+    /// Whole minutes.
+    minutes: f64,
+    /// The arithmetic, for the text.
+    text: String,
+}
+
+fn iv_timing(
+    rules: &RuleSet,
+    ctx: &Context,
+    w: &Weight,
+    p: &Product,
+    dose_mg: f64,
+    speed: &IvSpeed,
+    label_max_mg_per_min: f64,
+) -> Option<IvTiming> {
+    let salt_per_unit = p.salt_mg.filter(|v| *v > 0.0)?;
+    let elemental_per_unit = p.elemental_mg.filter(|v| *v > 0.0)?;
+    let elemental = dose_mg * elemental_per_unit / salt_per_unit;
+    let element = p.elemental.as_deref().unwrap_or("");
+    let max_salt = speed.max_salt_mg_per_min.min(label_max_mg_per_min);
+    let by_salt = dose_mg / max_salt;
+    let mut parts = vec![
+        format!("at least {} min ({})", num_trim(speed.min_minutes), speed.min_minutes_source),
+        format!(
+            "no faster than {} mg/min of the salt ({}): {} mg / {} mg/min = {} min",
+            num_trim(max_salt),
+            speed.max_rate_source,
+            num_trim(dose_mg),
+            num_trim(max_salt),
+            num_trim(by_salt)
+        ),
+    ];
+    let mut need = speed.min_minutes.max(by_salt);
+    if element == "calcium" {
+        let c = calcium_ceiling(rules, ctx)?;
+        let per_kg_total = c.max_elemental_mg_per_kg_min * w.kg;
+        let ceiling = c.max_elemental_mg_per_min.min(per_kg_total);
+        let by_calcium = elemental / ceiling;
+        parts.push(format!(
+            "elemental calcium no faster than {} mg/min, the lower of {} mg/min and {} mg/kg/min x {} kg = {} mg/min ({}): {} mg / {} mg/min = {} min",
+            num_trim(ceiling),
+            num_trim(c.max_elemental_mg_per_min),
+            num_trim(c.max_elemental_mg_per_kg_min),
+            num_trim(w.kg),
+            num_trim(per_kg_total),
+            c.source,
+            num_trim(elemental),
+            num_trim(ceiling),
+            num_trim(by_calcium)
+        ));
+        need = need.max(by_calcium);
+    }
+    let minutes = (need - 1e-9).ceil().max(1.0);
+    let per_min = elemental / minutes;
+    let mass = if element == "calcium" {
+        rules.analyte(Analyte::CalciumTotal).and_then(|a| a.molar_mass_g_per_mol)
+    } else {
+        rules.analyte(Analyte::Magnesium).and_then(|a| a.molar_mass_g_per_mol)
+    };
+    let mmol = mass.map_or_else(String::new, |m| format!(", {} mmol/min", num(per_min / m, 3)));
+    let text = format!(
+        "Duration: {}. So over {} min: {} mg elemental {element} / {} min = {} mg elemental {element}/min{mmol} ({} mg/kg/min), {} mg/min of the salt.",
+        parts.join("; "),
+        num_trim(minutes),
+        num_trim(elemental),
+        num_trim(minutes),
+        num_trim(per_min),
+        num(per_min / w.kg, 3),
+        num_trim(dose_mg / minutes)
+    );
+    Some(IvTiming { minutes, text })
+}
+
+/// The infusion's elemental calcium per minute against the common ceiling, as text (a
+/// continuous infusion is far below it at the published rates; a site rate above it is said).
+fn infusion_speed_text(rules: &RuleSet, ctx: &Context, w: &Weight, p: &Product, salt_mg_h: f64) -> String {
+    let (Some(e), Some(salt), Some(c)) = (p.elemental_mg, p.salt_mg.filter(|v| *v > 0.0), calcium_ceiling(rules, ctx))
+    else {
+        return String::new();
+    };
+    let per_min = salt_mg_h * e / salt / 60.0;
+    let ceiling = c.max_elemental_mg_per_min.min(c.max_elemental_mg_per_kg_min * w.kg);
+    format!(
+        " Elemental calcium: {} mg/h x {}/{} / 60 = {} mg/min ({} mg/kg/min){}",
+        num_trim(salt_mg_h),
+        num_trim(e),
+        num_trim(salt),
+        num(per_min, 3),
+        num(per_min / w.kg, 4),
+        if per_min <= ceiling {
+            format!(", within the ceiling of {} mg/min for every IV calcium salt.", num_trim(ceiling))
+        } else {
+            format!(", ABOVE the ceiling of {} mg/min for every IV calcium salt: lower the rate.", num_trim(ceiling))
+        }
+    )
+}
+
 /// Build the plan. `None` when no treatment is due (calcium not low).
 pub fn plan(
     rules: &RuleSet,
@@ -446,6 +582,13 @@ pub fn plan(
     let urgent = finding.is_symptomatic() || finding.grade.as_ref().is_some_and(|g| g.severity == IssueSeverity::High);
     let mg_low =
         workup.and_then(|w| w.readings.labs.get(&Analyte::Magnesium)).is_some_and(|r| r.outcome == LabOutcome::Low);
+    let phosphate_high = high_phosphate(rules, facts, &ctx).is_some();
+    let likely = |ids: &[String]| {
+        workup.is_some_and(|w| w.causes.iter().any(|c| c.label == CauseLabel::Likely && ids.contains(&c.id)))
+    };
+    // With a high phosphate and kidney disease the likely cause, oral calcium carbonate is
+    // also the phosphate binder, given with meals (KDOQI pediatric Guideline 6).
+    let binder = phosphate_high && likely(&t.oral.binder_for);
 
     match &weight {
         Err(why) => {
@@ -491,14 +634,19 @@ pub fn plan(
                 } else {
                     plan.notes.push("Calcium chloride is not proposed: it is for a central line only (it irritates veins and causes necrosis if it extravasates), and no central line is recorded.".into());
                 }
-            } else if let Some(p) = oral(rules, &ctx, w, &mut plan.issues) {
+                plan.notes.push(if binder {
+                    format!("{} {}", t.oral.transition, t.oral.binder_advice)
+                } else {
+                    t.oral.transition.clone()
+                });
+            } else if let Some(p) = oral(rules, &ctx, w, binder, &mut plan.issues) {
                 plan.notes.push("Asymptomatic and not severe: oral calcium, no IV calcium.".into());
                 plan.proposals.push(p);
             }
         }
     }
     if let Some(w) = workup {
-        vitamin_d(rules, &ctx, w, &mut plan);
+        vitamin_d(rules, &ctx, w, phosphate_high, &mut plan);
     }
     plan.notes.push(t.vitamin_d.diet_advice.clone());
     specimen_caution(finding, &mut plan);
@@ -555,15 +703,15 @@ fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &b.chosen, &b.product)?;
     let label_max = adm.bolus_dilution_mg_per_ml[1];
     let peripheral_max = b.peripheral_max_mg_per_ml.map_or(label_max, |site| site.min(label_max));
-    let max_rate = adm.max_bolus_rate_pediatric_mg_per_min;
+    let speed = speed_for(ctx, &b.speed)?;
+    let timing = iv_timing(rules, ctx, w, p, dose, &speed, adm.max_bolus_rate_pediatric_mg_per_min)?;
     let final_ml = dose / peripheral_max;
     let diluent_ml = (final_ml - ml).max(0.0);
-    let minutes = b.min_minutes.max(dose / max_rate);
     let diluent =
         rules.treatment.diluents.iter().find(|x| x.id == b.diluent).map_or(b.diluent.as_str(), |x| x.label.as_str());
     let phrase = dose_phrase(raw, dose, &cap, "mg");
     let text = format!(
-        "{how} = {phrase} = {} mL of {} ({}); dilute with {} mL {diluent} to {} mL ({} mg/mL, the label's bolus dilution is {}-{} mg/mL); give over at least {} min ({}) and no faster than {} mg/min ({}). {} Diluent: {}.",
+        "{how} = {phrase} = {} mL of {} ({}); dilute with {} mL {diluent} to {} mL ({} mg/mL, the label's bolus dilution is {}-{} mg/mL); give over at least {} min. {} {} Diluent: {}.",
         num_trim(ml),
         p.label,
         elemental_text(p, ml),
@@ -572,10 +720,8 @@ fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         num_trim(peripheral_max),
         num_trim(adm.bolus_dilution_mg_per_ml[0]),
         num_trim(adm.bolus_dilution_mg_per_ml[1]),
-        num_trim(minutes.ceil()),
-        b.min_minutes_source,
-        num_trim(max_rate),
-        adm.source,
+        num_trim(timing.minutes),
+        timing.text,
         b.monitoring,
         b.diluent_reason
     );
@@ -585,7 +731,7 @@ fn bolus(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         product: p.clone(),
         text,
         dose: Some(Qty { value: round_to(dose, 0.1), unit: "mg" }),
-        rate: Some(Qty { value: round_to(dose / minutes, 0.1), unit: "mg/min" }),
+        rate: Some(Qty { value: round_to(dose / timing.minutes, 0.1), unit: "mg/min" }),
         per_day: None,
         days: None,
         max_per_day: None,
@@ -704,6 +850,7 @@ fn infusion(
         num_trim(mg_h_given * 24.0),
         inf.monitoring
     );
+    text.push_str(&infusion_speed_text(rules, ctx, w, p, mg_h_given));
     fluid_load(rules, ctx, w, ml_h, &mut text, issues);
     if !already.counted.is_empty() || !already.uncounted.is_empty() {
         text.push_str(&format!(
@@ -810,16 +957,24 @@ fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
     // The loader refuses rules without this rate limit; without one, no chloride is proposed.
     let max_rate_ml_per_min = rate.filter(|r| *r > 0.0)?;
     let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &ch.chosen, &ch.product)?;
-    let minutes = (ml / max_rate_ml_per_min).max(1.0);
+    let speed = speed_for(ctx, &ch.speed)?;
+    // The label's mL/min as salt mg/min of this product.
+    let label_max = max_rate_ml_per_min * p.salt_mg?;
+    let timing = iv_timing(rules, ctx, w, p, dose, &speed, label_max)?;
     let phrase = dose_phrase(raw, dose, &cap, "mg");
+    let ml_per_min = ml / timing.minutes;
     let text = format!(
-        "Central line only. {how} = {phrase} calcium chloride = {} mL of {} ({}); no faster than {} mL/min ({}), so over at least {} min. Calcium chloride irritates veins and causes tissue necrosis and sloughing if it extravasates.",
+        "Central line only. {how} = {phrase} calcium chloride = {} mL of {} ({}); give over at least {} min ({} mL/min = {} mL/h; the label's {} mL/min ({}) is a maximum rate, not a duration). {} {} Calcium chloride irritates veins and causes tissue necrosis and sloughing if it extravasates.",
         num_trim(ml),
         p.label,
         elemental_text(p, ml),
+        num_trim(timing.minutes),
+        num(ml_per_min, 3),
+        num(ml_per_min * 60.0, 1),
         num_trim(max_rate_ml_per_min),
         rate_source,
-        num_trim(minutes.ceil())
+        timing.text,
+        ch.central_line_preparation
     );
     Some(MedProposal {
         key: "calcium-chloride",
@@ -827,7 +982,7 @@ fn chloride(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> {
         product: p.clone(),
         text,
         dose: Some(Qty { value: round_to(dose, 0.1), unit: "mg" }),
-        rate: Some(Qty { value: max_rate_ml_per_min, unit: "mL/min" }),
+        rate: Some(Qty { value: round_to(dose / timing.minutes, 0.1), unit: "mg/min" }),
         per_day: None,
         days: None,
         max_per_day: None,
@@ -904,8 +1059,22 @@ fn measure<'r>(
     Some(if amount < step - 1e-9 { Err(of(step)) } else { Ok(of(amount)) })
 }
 
-fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, issues: &mut Vec<SafetyIssue>) -> Option<MedProposal> {
+fn oral(
+    rules: &RuleSet,
+    ctx: &Context,
+    w: &Weight,
+    binder: bool,
+    issues: &mut Vec<SafetyIssue>,
+) -> Option<MedProposal> {
     let o = &rules.treatment.oral;
+    // As a phosphate binder in kidney disease the timing is with meals, and the total is held
+    // to the KDOQI ceiling too (Guideline 6.5 / 7.4).
+    let advice = if binder { format!("{} {}", o.binder_advice, o.advice) } else { o.advice.clone() };
+    let title = if binder {
+        "Oral elemental calcium, given with meals (also the phosphate binder)"
+    } else {
+        "Oral elemental calcium"
+    };
     let c = chosen(ctx, &o.chosen)?;
     let d = dose_source(rules, &c.dose_source)?;
     let tablets = ctx.within(&crate::rules::model::AgeSpan {
@@ -920,6 +1089,15 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, issues: &mut Vec<SafetyIssue
         .find(|l| ctx.within(&l.applies) == Some(true))
         .and_then(|l| rules.safety_sources.get(&l.safety_source))
         .and_then(|s| Some((s.threshold?, s.source.as_str())));
+    let kidney_limit = rules
+        .safety_sources
+        .get("kdoqi_ckd_total_calcium_intake")
+        .filter(|_| binder)
+        .and_then(|s| Some((s.threshold?, s.source.as_str())));
+    let limit = match (limit, kidney_limit) {
+        (Some(a), Some(b)) => Some(if b.0 < a.0 { b } else { a }),
+        (a, b) => a.or(b),
+    };
     let cap = limit.map_or(f64::INFINITY, |l| l.0);
     let day = raw_day.min(cap);
     let doses = f64::from(o.doses_per_day);
@@ -989,13 +1167,13 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, issues: &mut Vec<SafetyIssue
         });
         return Some(MedProposal {
             key: "oral-calcium",
-            title: "Oral elemental calcium".into(),
+            title: title.into(),
             product: (*p).clone(),
             text: format!(
                 "{head}. No product in the formulary measures this dose within {}% ({}), so no amount is proposed: prescribe a measurable dose by hand.{not_used_text} {}",
                 num_trim(tolerance),
                 o.rounding_source,
-                o.advice
+                advice
             ),
             dose: None,
             rate: None,
@@ -1020,11 +1198,11 @@ fn oral(rules: &RuleSet, ctx: &Context, w: &Weight, issues: &mut Vec<SafetyIssue
         num_trim(m.mg * doses),
         num_trim(off.abs().round()),
         if off >= 0.0 { "above" } else { "below" },
-        o.advice
+        advice
     );
     Some(MedProposal {
         key: "oral-calcium",
-        title: "Oral elemental calcium".into(),
+        title: title.into(),
         product: m.p.clone(),
         text,
         dose: Some(Qty {
@@ -1047,19 +1225,19 @@ fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> 
     let adm = &rules.magnesium_sulfate_administration;
     let WeighedDose { d, p, raw, how, cap, dose, ml } = weighed(rules, ctx, w, &m.chosen, &m.product)?;
     let final_ml = dose / adm.max_iv_concentration_mg_per_ml;
-    let minutes = m.minutes.max(dose / adm.max_iv_rate_mg_per_min);
+    let speed = speed_for(ctx, &m.speed)?;
+    let timing = iv_timing(rules, ctx, w, p, dose, &speed, adm.max_iv_rate_mg_per_min)?;
     let phrase = dose_phrase(raw, dose, &cap, "mg");
     let text = format!(
-        "Give magnesium first: calcium will not hold while magnesium is low. {how} = {phrase} magnesium sulfate = {} mL of {} ({}); dilute to {} mL or more (at most {} mg/mL) and give over {} min ({}; no faster than {} mg/min; {}). {}",
+        "Give magnesium first: calcium will not hold while magnesium is low. {how} = {phrase} magnesium sulfate = {} mL of {} ({}); dilute to {} mL or more (at most {} mg/mL; {}) and give over {} min. {} {}",
         num_trim(ml),
         p.label,
         elemental_text(p, ml),
         num_trim(final_ml),
         num_trim(adm.max_iv_concentration_mg_per_ml),
-        num_trim(minutes.ceil()),
-        m.minutes_source,
-        num_trim(adm.max_iv_rate_mg_per_min),
         adm.source,
+        num_trim(timing.minutes),
+        timing.text,
         m.repeat
     );
     Some(MedProposal {
@@ -1068,7 +1246,7 @@ fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> 
         product: p.clone(),
         text,
         dose: Some(Qty { value: round_to(dose, 0.1), unit: "mg" }),
-        rate: Some(Qty { value: round_to(dose / minutes, 0.1), unit: "mg/min" }),
+        rate: Some(Qty { value: round_to(dose / timing.minutes, 0.1), unit: "mg/min" }),
         per_day: None,
         days: None,
         max_per_day: None,
@@ -1079,47 +1257,126 @@ fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> 
     })
 }
 
-fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, plan: &mut TreatmentPlan) {
+/// Vitamin D with the calcium (2016 global consensus on nutritional rickets pairs
+/// cholecalciferol with calcium): a treatment dose when a nutritional cause is likely or
+/// 25-OH vitamin D is low; a maintenance dose while 25-OH vitamin D is not measured, calcium
+/// is proposed and no cause treated with calcitriol is likely; none when 25-OH vitamin D is
+/// not low. Calcitriol for the causes that need it, flagged for specialist dosing, and
+/// deferred for kidney disease while the phosphate is high (KDOQI pediatric 9A.1.a).
+fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, plan: &mut TreatmentPlan) {
     let v = &rules.treatment.vitamin_d;
-    let label_of = |id: &str| w.causes.iter().find(|c| c.id == id).map(|c| c.label);
-    if label_of("vitamin_d_deficiency") == Some(CauseLabel::Likely)
-        && let (Some(c), Some(p)) = (chosen(ctx, &v.chosen), product(rules, &v.cholecalciferol_product))
+    let likely = |id: &str| w.causes.iter().any(|c| c.id == id && c.label == CauseLabel::Likely);
+    let name_of = |id: &str| w.causes.iter().find(|c| c.id == id).map(|c| c.name.clone());
+    let d25 = w.readings.labs.get(&Analyte::VitaminD25Oh);
+    let d25_low = d25.is_some_and(|r| r.outcome == LabOutcome::Low);
+    let calcitriol_ids: Vec<&String> = v.calcitriol_for.iter().filter(|id| likely(id)).collect();
+    let (deferred, specialist_ids): (Vec<&String>, Vec<&String>) =
+        calcitriol_ids.into_iter().partition(|id| phosphate_high && v.calcitriol_deferred_for.contains(id));
+    let calcium_proposed = plan.proposals.iter().any(|p| p.key.starts_with("calcium") || p.key == "oral-calcium");
+    let treat_causes: Vec<String> = v.treat_for.iter().filter(|id| likely(id)).filter_map(|id| name_of(id)).collect();
+    let treat = !treat_causes.is_empty() || d25_low;
+    let maintain = !treat && d25.is_none() && calcium_proposed && specialist_ids.is_empty() && deferred.is_empty();
+    let choices = if treat { &v.chosen } else { &v.maintenance };
+    if (treat || maintain)
+        && let (Some(c), Some(p)) = (chosen(ctx, choices), product(rules, &v.cholecalciferol_product))
         && let (Some(d), Some(iu)) = (dose_source(rules, &c.dose_source), p.iu)
     {
         let per_day = pick(d, c.pick).min(c.max_single.unwrap_or(f64::INFINITY));
         let amount = per_day / iu;
+        let (measure, not_measure) = match p.strength_per.as_str() {
+            "mL" => ("mL", "drops"),
+            "drop" => (if (amount - 1.0).abs() < 1e-9 { "drop" } else { "drops" }, "mL"),
+            other => (other, ""),
+        };
+        let not_text = if not_measure.is_empty() {
+            String::new()
+        } else {
+            format!(" ({} {measure}, not {} {not_measure})", num_trim(amount), num_trim(amount))
+        };
+        let why = if treat {
+            let mut reasons = treat_causes.clone();
+            if d25_low {
+                reasons.push(d25.map_or_else(String::new, |r| r.text.clone()));
+            }
+            format!("Treatment dose: {}", reasons.join("; "))
+        } else {
+            "25-OH vitamin D is not measured: a maintenance dose with the calcium while it is measured; if it is low, the treatment dose for the age replaces it".to_owned()
+        };
+        let course = if treat {
+            format!(" for {} days ({}), then maintenance", v.treatment_days, v.treatment_source)
+        } else {
+            String::new()
+        };
         plan.proposals.push(MedProposal {
-                    key: "cholecalciferol",
-                    title: "Cholecalciferol (vitamin D3) for nutritional deficiency".into(),
-                    product: p.clone(),
-                    text: format!(
-                        "{} IU once daily = {} {} of {} ({} IU per {}) for {} days ({}), then maintenance. Give with the calcium.",
-                        num_trim(per_day),
-                        num_trim(amount),
-                        p.strength_per,
-                        p.label,
-                        num_trim(iu),
-                        p.strength_per,
-                        v.treatment_days,
-                        v.treatment_source
-                    ),
-                    dose: Some(Qty { value: per_day, unit: "[iU]" }),
-                    rate: None,
-                    per_day: Some(1),
-                    days: Some(v.treatment_days),
-                    max_per_day: None,
-                    route: Route::Oral,
-                    sources: vec![format!("Chosen: {}", range_text(d))],
-                    alternative: false,
-                    specialist: false,
-                });
+            key: "cholecalciferol",
+            title: if treat {
+                "Cholecalciferol (vitamin D3), treatment dose, with the calcium".into()
+            } else {
+                "Cholecalciferol (vitamin D3), maintenance dose, with the calcium".into()
+            },
+            product: p.clone(),
+            text: format!(
+                "{why}. {} IU once daily = {} IU / {} IU per {} = {} {measure} of {}{not_text}{course}. Paired with the calcium: {}",
+                num_trim(per_day),
+                num_trim(per_day),
+                num_trim(iu),
+                p.strength_per,
+                num_trim(amount),
+                p.label,
+                v.pairing_source
+            ),
+            dose: Some(Qty { value: per_day, unit: "[iU]" }),
+            rate: None,
+            per_day: Some(1),
+            days: if treat { Some(v.treatment_days) } else { None },
+            max_per_day: None,
+            route: Route::Oral,
+            sources: vec![format!("Chosen: {}", range_text(d))],
+            alternative: false,
+            specialist: false,
+        });
+        if matches!(p.strength_per.as_str(), "mL" | "drop") {
+            let (confusion_source, _) = fact(rules, "vitamin_d_drop_strength_confusion");
+            let confusion =
+                rules.safety_sources.get("vitamin_d_drop_strength_confusion").map_or("", |f| f.text.as_str());
+            let unverified = if p.confidence == "unverified" {
+                format!(" The strength of the formulary's product is not verified from its own label ({}).", p.source)
+            } else {
+                String::new()
+            };
+            plan.issues.push(SafetyIssue {
+                key: "vitamin-d-liquid",
+                act_code: Some(("DOSE", "Dosage problem")),
+                severity: IssueSeverity::Moderate,
+                title: "Liquid vitamin D: drops and mL are not the same".into(),
+                detail: format!(
+                    "{} IU a day is {} {measure} of {} ({} IU per {}). {confusion} ({confusion_source}).{unverified}",
+                    num_trim(per_day),
+                    num_trim(amount),
+                    p.label,
+                    num_trim(iu),
+                    p.strength_per
+                ),
+                implicated: Vec::new(),
+                mitigation: "Prescribe in IU and in the measure of the named product (mL or drops); check the stocked product's label for IU per mL or per drop, and give the measuring device that comes with it.".into(),
+            });
+        }
     }
-    let specialist: Vec<String> = v
-        .calcitriol_for
-        .iter()
-        .filter(|id| label_of(id) == Some(CauseLabel::Likely))
-        .filter_map(|id| w.causes.iter().find(|c| &c.id == id).map(|c| c.name.clone()))
-        .collect();
+    if !deferred.is_empty() {
+        let names: Vec<String> = deferred.iter().filter_map(|id| name_of(id)).collect();
+        let phosphate: Vec<Source> =
+            w.readings.labs.get(&Analyte::Phosphate).map(|r| r.sources.clone()).unwrap_or_default();
+        plan.issues.push(SafetyIssue {
+            key: "calcitriol-deferred",
+            act_code: None,
+            severity: IssueSeverity::Moderate,
+            title: "Calcitriol deferred until the phosphate is controlled".into(),
+            detail: format!("Likely cause: {}. {}", names.join("; "), v.calcitriol_deferred),
+            implicated: phosphate,
+            mitigation: "Lower the phosphate first (diet, calcium carbonate with meals as a binder); recheck calcium and phosphate, then review calcitriol with pediatric nephrology.".into(),
+        });
+    }
+    let specialist: Vec<String> = specialist_ids.iter().filter_map(|id| name_of(id)).collect();
     if !specialist.is_empty()
         && let Some(p) = product(rules, &v.calcitriol_product)
     {
@@ -1139,6 +1396,36 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, plan: &mut TreatmentPla
             specialist: true,
         });
     }
+}
+
+/// A phosphate above the upper limit for the age: the newest result in the result
+/// window, against the lowest upper limit of the lab ranges the age may fall in.
+struct HighPhosphate<'f> {
+    /// mmol/L.
+    value: f64,
+    /// Upper limit, mmol/L.
+    upper: f64,
+    /// Source of the range.
+    range_source: String,
+    /// The result.
+    m: &'f crate::clinical::facts::Measurement,
+}
+
+fn high_phosphate<'f>(rules: &RuleSet, facts: &'f Facts, ctx: &Context) -> Option<HighPhosphate<'f>> {
+    use crate::clinical::bands::at_least;
+    let limit = facts.now - (rules.windows.result_max_age_hours * 3600.0).round() as i64;
+    let m = facts.of(Analyte::Phosphate).into_iter().find(|m| m.when.latest >= limit)?;
+    let range = rules
+        .lab_ranges
+        .iter()
+        .filter(|r| r.analyte == Analyte::Phosphate && at_least(ctx.age_max, r.from) && !at_least(ctx.age_min, r.until))
+        .min_by(|a, b| a.upper.total_cmp(&b.upper))?;
+    (m.value > range.upper).then(|| HighPhosphate {
+        value: m.value,
+        upper: range.upper,
+        range_source: range.source.clone(),
+        m,
+    })
 }
 
 fn any_events(facts: &Facts, list: &str) -> Vec<Source> {
@@ -1397,10 +1684,69 @@ fn safety_with_proposals(
         let fresh = |a| facts.of(a).into_iter().find(|m| m.when.latest >= limit);
         let total = fresh(Analyte::CalciumTotal);
         let phosphate = fresh(Analyte::Phosphate);
+        let ca_mass = rules.analyte(Analyte::CalciumTotal).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
+        let p_mass = rules.analyte(Analyte::Phosphate).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
+        // A high phosphate on its own, with or without a total calcium to make the product.
+        if let Some(h) = high_phosphate(rules, facts, ctx) {
+            let (fact_source, _) = fact(rules, "phosphate_high_with_calcium");
+            let fact_text = rules.safety_sources.get("phosphate_high_with_calcium").map_or("", |f| f.text.as_str());
+            plan.issues.push(SafetyIssue {
+                key: "phosphate-high",
+                act_code: None,
+                severity: if iv_calcium { IssueSeverity::High } else { IssueSeverity::Moderate },
+                title: "Phosphate above the upper limit for age".into(),
+                detail: format!(
+                    "Phosphate {} mmol/L ({} mg/dL) is {} times the upper limit {} mmol/L for the age (range: {}). {fact_text} ({fact_source}). {}",
+                    num(h.value, 2),
+                    num(h.value * p_mass / 10.0, 1),
+                    num(h.value / h.upper, 1),
+                    num(h.upper, 2),
+                    h.range_source,
+                    if total.is_some() {
+                        "The calcium x phosphate product is checked from the total calcium in the window."
+                    } else {
+                        "No total calcium is in the result window, so the calcium x phosphate product cannot be computed; this warning does not need it."
+                    }
+                ),
+                implicated: vec![h.m.source.clone()],
+                mitigation: "Lower the phosphate first where possible (stop phosphate intake; in kidney disease a calcium binder with meals and specialist advice); give IV calcium only for symptoms or severe hypocalcemia, at the rate shown, never in a line with phosphate; recheck calcium and phosphate.".into(),
+            });
+        }
         if let (Some(ca), Some(p)) = (total, phosphate) {
-            let ca_mass = rules.analyte(Analyte::CalciumTotal).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
-            let p_mass = rules.analyte(Analyte::Phosphate).and_then(|a| a.molar_mass_g_per_mol).unwrap_or(f64::NAN);
-            let product = (ca.value * ca_mass / 10.0) * (p.value * p_mass / 10.0);
+            // KDOQI states its calcium targets as corrected total calcium: adjust with an
+            // albumin drawn with the calcium when the rules say so.
+            let pairing = (rules.windows.albumin_pairing_hours * 3600.0).round() as i64;
+            let albumin = facts
+                .of(Analyte::Albumin)
+                .into_iter()
+                .find(|a| (a.when.latest - ca.when.latest).abs() <= pairing)
+                .filter(|_| s.ca_x_p_corrected_calcium);
+            let (ca_mg_dl, ca_text) = match albumin {
+                Some(alb) => {
+                    let d = super::status::adjust(rules, ca, alb);
+                    (
+                        d.value_mg_dl,
+                        format!(
+                            "Albumin-adjusted total calcium {} mg/dL ({} {} {})",
+                            num(d.value_mg_dl, 2),
+                            d.formula,
+                            d.arithmetic,
+                            s.ca_x_p_corrected_source
+                        ),
+                    )
+                }
+                None => (
+                    ca.value * ca_mass / 10.0,
+                    format!(
+                        "Total calcium {} mg/dL{}",
+                        num(ca.value * ca_mass / 10.0, 2),
+                        if s.ca_x_p_corrected_calcium { " (no albumin drawn with it, so not adjusted)" } else { "" }
+                    ),
+                ),
+            };
+            let product = ca_mg_dl * (p.value * p_mass / 10.0);
+            let mut implicated = vec![ca.source.clone(), p.source.clone()];
+            implicated.extend(albumin.map(|a| a.source.clone()));
             if let Some((limit, caxp_source)) = ca_x_p_limit(rules, ctx)
                 && product > limit
             {
@@ -1410,14 +1756,13 @@ fn safety_with_proposals(
                     severity: IssueSeverity::Moderate,
                     title: "High calcium-phosphate product".into(),
                     detail: format!(
-                        "Total calcium {} mg/dL x phosphate {} mg/dL = {} mg2/dL2, above {} ({}). Giving calcium risks calcium-phosphate precipitation.",
-                        num(ca.value * ca_mass / 10.0, 2),
+                        "{ca_text} x phosphate {} mg/dL = {} mg2/dL2, above {} ({}). Giving calcium risks calcium-phosphate precipitation.",
                         num(p.value * p_mass / 10.0, 2),
                         num(product, 0),
                         num_trim(limit),
                         caxp_source
                     ),
-                    implicated: vec![ca.source.clone(), p.source.clone()],
+                    implicated,
                     mitigation: "Lower the phosphate first where possible and give calcium cautiously, with specialist advice.".into(),
                 });
             }
@@ -1526,6 +1871,10 @@ mod tests {
         // 22.1 x 8 = 176.8 mg/h / 10 = 17.68 -> 17.7 mL/h.
         assert_eq!(inf.rate, Some(Qty { value: 17.7, unit: "mL/h" }));
         assert!(inf.text.contains("17.68 mL/h, rounded"), "{}", inf.text);
+        // 17.7 mL/h x 10 mg/mL = 177 mg/h x 9.3/100 / 60 = 0.274 mg elemental Ca/min, within the
+        // ceiling 9.3 mg/min (0.93 x 22.1 = 20.55 is higher).
+        assert!(inf.text.contains("Elemental calcium: 177 mg/h x 9.3/100 / 60 = 0.274 mg/min"), "{}", inf.text);
+        assert!(inf.text.contains("within the ceiling of 9.3 mg/min"), "{}", inf.text);
     }
 
     #[test]
@@ -2019,6 +2368,277 @@ mod tests {
         for (at, text) in texts {
             assert!(!text.contains("/work/") && !text.contains("shared/reference"), "{at}: {text}");
         }
+    }
+
+    /// The plan with the work-up run first (causes feed the treatment), gender female.
+    fn full_plan(
+        r: &RuleSet,
+        birth: Option<PartialDate>,
+        m: Vec<Measurement>,
+        events: Vec<CodedEvent>,
+        access: VascularAccess,
+    ) -> TreatmentPlan {
+        let mut facts = facts_of(birth, Gender::Female, m, events);
+        facts.vascular_access = access;
+        let a = status::assess(&facts, r);
+        let finding = a.finding.expect("a finding");
+        let w = crate::clinical::workup::run(&facts, r, &finding);
+        plan(r, &facts, &finding, w.as_ref()).expect("a plan")
+    }
+
+    /// "give over at least N min" read back from a proposal's text.
+    fn minutes_of(p: &MedProposal) -> f64 {
+        p.text
+            .split("give over at least ")
+            .nth(1)
+            .and_then(|t| t.split(" min").next())
+            .and_then(|t| t.parse().ok())
+            .unwrap_or_else(|| panic!("no duration in {}", p.text))
+    }
+
+    fn elemental_per_min(p: &MedProposal) -> f64 {
+        let dose = p.dose.as_ref().map(|d| d.value).expect("a dose");
+        dose * p.product.elemental_mg.expect("elemental") / p.product.salt_mg.expect("salt") / minutes_of(p)
+    }
+
+    #[test]
+    fn neonate_central_line_chloride_is_no_faster_in_calcium_than_the_gluconate_bolus() {
+        // A 10-day-old of 3.2 kg, ionized 0.70, central line.
+        // Gluconate bolus (US label, under 1 month, low end 100 mg/kg): 3.2 x 100 = 320 mg
+        // = 3.2 mL x 9.3 mg/mL = 29.76 mg elemental Ca. Ceiling: the lower of 9.3 mg/min and
+        // 0.93 mg/kg/min x 3.2 kg = 2.976 mg/min -> 29.76 / 2.976 = 10 min; the salt at
+        // 100 mg/min needs 3.2 min; the shortest is 10 min -> 10 min = 2.976 mg Ca/min.
+        // Chloride (AHA 20 mg/kg): 64 mg = 0.64 mL x 27.3 mg/mL = 17.472 mg elemental Ca.
+        // Before: 0.64 mL at the label's 1 mL/min "over at least 1 min" = 17.47 mg Ca/min,
+        // 5.9 times the gluconate bolus. Now: 17.472 / 2.976 = 5.87 min, the salt 0.64 min,
+        // the shortest 10 min -> 10 min = 1.75 mg Ca/min, slower than the gluconate.
+        let r = rules();
+        let mut facts = facts_of(born_days_ago(10), Gender::Female, vec![ionized(0.70, 1, "ica"), weight(3.2)], vec![]);
+        facts.vascular_access = VascularAccess::Central;
+        let a = status::assess(&facts, &r);
+        let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+        let b = find(&p, "calcium-bolus");
+        let c = find(&p, "calcium-chloride");
+        assert_eq!(b.dose.as_ref().map(|d| d.value), Some(320.0));
+        assert_eq!(c.dose.as_ref().map(|d| d.value), Some(64.0));
+        assert_eq!(minutes_of(b), 10.0, "{}", b.text);
+        assert_eq!(minutes_of(c), 10.0, "{}", c.text);
+        assert!(b.text.contains("29.76 mg elemental calcium / 10 min = 2.98 mg elemental calcium/min"), "{}", b.text);
+        assert!(c.text.contains("17.47 mg elemental calcium / 10 min = 1.75 mg elemental calcium/min"), "{}", c.text);
+        assert!(c.text.contains("0.93 mg/kg/min x 3.2 kg = 2.98 mg/min"), "{}", c.text);
+        assert!(c.text.contains("is a maximum rate, not a duration"), "{}", c.text);
+        assert!(c.text.contains("Preparation for the central line"), "{}", c.text);
+        assert!(elemental_per_min(c) <= elemental_per_min(b) + 1e-9);
+        // 6.4 mg/min of chloride salt (64 mg / 10 min).
+        assert_eq!(c.rate, Some(Qty { value: 6.4, unit: "mg/min" }));
+    }
+
+    #[test]
+    fn child_chloride_is_held_to_9_3_mg_calcium_per_min() {
+        // 22 kg: 440 mg chloride = 4.4 mL x 27.3 = 120.12 mg Ca. Ceiling: the lower of 9.3 and
+        // 0.93 x 22 = 20.46 -> 9.3 mg/min: 120.12 / 9.3 = 12.92 -> 13 min (salt 4.4 min,
+        // shortest 10 min). 120.12 / 13 = 9.24 mg Ca/min.
+        let r = rules();
+        let mut facts = facts_of(seven(), Gender::Female, vec![ionized(0.85, 1, "ica"), weight(22.0)], vec![]);
+        facts.vascular_access = VascularAccess::Central;
+        let a = status::assess(&facts, &r);
+        let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+        let c = find(&p, "calcium-chloride");
+        assert_eq!(minutes_of(c), 13.0, "{}", c.text);
+        assert!(c.text.contains("120.12 mg elemental calcium / 13 min = 9.24 mg elemental calcium/min"), "{}", c.text);
+    }
+
+    #[test]
+    fn no_iv_calcium_salt_passes_the_elemental_ceiling_at_any_weight() {
+        // Neonates and 7-year-olds over plausible weights, central line (both salts proposed):
+        // elemental Ca per minute never above the lower of 9.3 mg/min and 0.93 mg/kg/min,
+        // and never shorter than the 10-min shortest duration.
+        let r = rules();
+        let ceiling = &r.treatment.calcium_rate[0];
+        for (birth, weights) in
+            [(born_days_ago(10), vec![1.0, 2.0, 2.5, 3.2, 4.0, 4.5]), (seven(), vec![15.0, 22.0, 30.0, 45.0])]
+        {
+            for kg in weights {
+                let mut facts = facts_of(birth, Gender::Female, vec![ionized(0.70, 1, "ica"), weight(kg)], vec![]);
+                facts.vascular_access = VascularAccess::Central;
+                let a = status::assess(&facts, &r);
+                let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+                if p.issues.iter().any(|i| i.key == "weight") {
+                    continue; // implausible for the age: no doses at all
+                }
+                for key in ["calcium-bolus", "calcium-chloride"] {
+                    let x = find(&p, key);
+                    let limit = ceiling.max_elemental_mg_per_min.min(ceiling.max_elemental_mg_per_kg_min * kg);
+                    assert!(elemental_per_min(x) <= limit + 1e-9, "{key} at {kg} kg: {}", x.text);
+                    assert!(minutes_of(x) >= 10.0, "{key} at {kg} kg");
+                }
+            }
+        }
+    }
+
+    #[test]
+    fn the_elemental_ceiling_is_no_faster_than_the_gluconate_label_and_bnfc() {
+        // 9.3 mg/min = the label's 100 mg/min of gluconate x 9.3 mg Ca per 100 mg; 0.93 mg/kg/min
+        // = BNFC 0.5 mL/kg in 5 min = 10 mg/kg/min of gluconate x 0.093.
+        let r = rules();
+        let g = r.products.iter().find(|p| p.id == r.treatment.bolus.product).unwrap();
+        let fraction = g.elemental_mg.unwrap() / g.salt_mg.unwrap();
+        for c in &r.treatment.calcium_rate {
+            assert!(
+                c.max_elemental_mg_per_min
+                    <= r.calcium_gluconate_administration.max_bolus_rate_pediatric_mg_per_min * fraction + 1e-9
+            );
+            assert!(close(c.max_elemental_mg_per_kg_min, 10.0 * fraction, 1e-9), "{}", c.max_elemental_mg_per_kg_min);
+        }
+        for s in r.treatment.bolus.speed.iter().chain(&r.treatment.chloride.speed) {
+            assert!(s.max_salt_mg_per_min <= r.calcium_gluconate_administration.max_bolus_rate_pediatric_mg_per_min);
+        }
+        for s in &r.treatment.magnesium.speed {
+            assert!(s.max_salt_mg_per_min <= r.magnesium_sulfate_administration.max_iv_rate_mg_per_min);
+        }
+    }
+
+    #[test]
+    fn magnesium_takes_its_shortest_duration_and_shows_elemental_magnesium_per_min() {
+        // 7 years, 22 kg, magnesium low: AHA 50 mg/kg (high end) = 1100 mg = 2.2 mL of 50%
+        // = 2.2 x 49.3 = 108.46 mg Mg; salt at 150 mg/min = 7.33 min; shortest 60 min
+        // -> 60 min: 108.46 / 60 = 1.81 mg Mg/min, 18.33 mg/min of the salt.
+        let r = rules();
+        let m = vec![ionized(0.85, 1, "ica"), weight(22.0), lab(Analyte::Magnesium, 0.40, "mmol/L", "mg")];
+        let p = full_plan(&r, seven(), m, vec![], VascularAccess::Peripheral);
+        let x = find(&p, "magnesium");
+        assert!(x.text.contains("give over 60 min"), "{}", x.text);
+        assert!(
+            x.text.contains("108.46 mg elemental magnesium / 60 min = 1.81 mg elemental magnesium/min"),
+            "{}",
+            x.text
+        );
+        assert_eq!(x.rate, Some(Qty { value: 18.3, unit: "mg/min" }));
+    }
+
+    #[test]
+    fn a_high_phosphate_warns_with_iv_calcium_when_no_total_calcium_is_measured() {
+        // 7 years (phosphate range 0.90-1.80 mmol/L, lab-ranges.toml): 3.6 mmol/L is 2.0 x the
+        // upper limit; ionized only. IV bolus proposed -> "phosphate-high", High. 1.5 -> none.
+        let r = rules();
+        for (value, fires) in [(3.6, true), (1.5, false)] {
+            let m = vec![ionized(0.85, 1, "ica"), weight(22.0), lab(Analyte::Phosphate, value, "mmol/L", "p")];
+            let facts = facts_of(seven(), Gender::Female, m, vec![]);
+            let a = status::assess(&facts, &r);
+            let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+            assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"));
+            let issue = p.issues.iter().find(|i| i.key == "phosphate-high");
+            assert_eq!(issue.is_some(), fires, "{value}");
+            if let Some(i) = issue {
+                assert_eq!(i.severity, IssueSeverity::High);
+                assert!(i.detail.contains("is 2.0 times the upper limit 1.80 mmol/L"), "{}", i.detail);
+                assert!(i.detail.contains("No total calcium is in the result window"), "{}", i.detail);
+                assert!(!p.issues.iter().any(|i| i.key == "caxp"));
+            }
+        }
+    }
+
+    #[test]
+    fn caxp_uses_the_albumin_adjusted_total_calcium() {
+        // 13 years, limit 55. Total 8.0 mg/dL with albumin 2.0 g/dL: adjusted 8.0 + 0.8 x (4.0 - 2.0)
+        // = 9.6 mg/dL; x phosphate 5.5 mg/dL = 52.8 < 55 unadjusted would be 8.0 x 5.5 = 44; at
+        // phosphate 6.0: adjusted 57.6 > 55 fires, unadjusted 48 would not.
+        let r = rules();
+        for (p_mg, fires) in [(5.5, false), (6.0, true)] {
+            let m = vec![
+                ionized(0.85, 1, "ica"),
+                total_mg(8.0, 1, "tca"),
+                albumin_g_dl(2.0, 1, "alb"),
+                phosphate_mg(p_mg, 1, "p"),
+                weight(45.0),
+            ];
+            let facts = facts_of(born_days_ago(13 * 365 + 100), Gender::Female, m, vec![]);
+            let a = status::assess(&facts, &r);
+            let p = plan(&r, &facts, &a.finding.unwrap(), None).unwrap();
+            let issue = p.issues.iter().find(|i| i.key == "caxp");
+            assert_eq!(issue.is_some(), fires, "phosphate {p_mg}");
+            if let Some(i) = issue {
+                assert!(i.detail.starts_with("Albumin-adjusted total calcium 9.60 mg/dL"), "{}", i.detail);
+                assert!(i.detail.contains("= 58 mg2/dL2, above 55"), "{}", i.detail);
+            }
+        }
+    }
+
+    /// A 7-year-old with chronic kidney disease, high phosphate and a mildly low ionized calcium.
+    fn ckd_plan(phosphate: f64) -> TreatmentPlan {
+        let r = rules();
+        let m = vec![
+            ionized(1.05, 1, "ica"),
+            weight(22.0),
+            lab(Analyte::Phosphate, phosphate, "mmol/L", "p"),
+            lab(Analyte::Creatinine, 250.0, "umol/L", "cr"),
+            lab(Analyte::PthIntact, 30.0, "pmol/L", "pth"),
+        ];
+        let events = vec![event(EventKind::Condition, "chronic_kidney_disease", 24, "ckd")];
+        full_plan(&r, seven(), m, events, VascularAccess::Unknown)
+    }
+
+    #[test]
+    fn kidney_disease_with_high_phosphate_gives_the_binder_with_meals_and_defers_calcitriol() {
+        // Phosphate 2.9 mmol/L > 1.80 (1.6 x). KDOQI pediatric 6.2 (calcium binder), 9A.1.a
+        // (active vitamin D only with phosphorus below the age limit).
+        let p = ckd_plan(2.9);
+        let o = find(&p, "oral-calcium");
+        assert!(o.title.contains("phosphate binder"), "{}", o.title);
+        assert!(o.text.contains("WITH a meal or feed"), "{}", o.text);
+        assert!(p.issues.iter().any(|i| i.key == "calcitriol-deferred"));
+        assert!(p.proposals.iter().all(|x| x.key != "calcitriol"));
+        assert!(p.issues.iter().any(|i| i.key == "phosphate-high" && i.severity == IssueSeverity::Moderate));
+        // Phosphate back in range: calcitriol for specialist dosing, no binder wording.
+        let p = ckd_plan(1.5);
+        assert!(p.proposals.iter().any(|x| x.key == "calcitriol"));
+        assert!(!find(&p, "oral-calcium").title.contains("binder"));
+        assert!(p.issues.iter().all(|i| i.key != "calcitriol-deferred"));
+    }
+
+    #[test]
+    fn oral_calcium_timing_is_with_meals_and_vitamin_d_is_paired() {
+        // 7 years, 22 kg, asymptomatic (oral). 25-OH vitamin D not measured: maintenance
+        // 600 IU/day = 600 / 400 IU per mL = 1.5 mL, with the drop/mL warning.
+        let r = rules();
+        let p = full_plan(&r, seven(), vec![ionized(1.05, 1, "ica"), weight(22.0)], vec![], VascularAccess::Unknown);
+        let o = find(&p, "oral-calcium");
+        assert!(o.text.contains("Give with feeds or meals"), "{}", o.text);
+        assert!(!o.text.contains("30 minutes"), "{}", o.text);
+        let v = find(&p, "cholecalciferol");
+        assert!(v.title.contains("maintenance"), "{}", v.title);
+        assert!(v.text.contains("600 IU once daily = 600 IU / 400 IU per mL = 1.5 mL of"), "{}", v.text);
+        assert!(v.text.contains("(1.5 mL, not 1.5 drops)"), "{}", v.text);
+        assert!(p.issues.iter().any(|i| i.key == "vitamin-d-liquid"));
+        // 25-OH vitamin D low (20 nmol/L): the treatment dose, SPEG 6 months-12 years low end
+        // 3000 IU = 7.5 mL, for 90 days.
+        let m = vec![ionized(1.05, 1, "ica"), weight(22.0), lab(Analyte::VitaminD25Oh, 20.0, "nmol/L", "d")];
+        let p = full_plan(&r, seven(), m, vec![], VascularAccess::Unknown);
+        let v = find(&p, "cholecalciferol");
+        assert_eq!(v.dose, Some(Qty { value: 3000.0, unit: "[iU]" }));
+        assert_eq!(v.days, Some(90));
+        assert!(v.text.contains("= 7.5 mL of"), "{}", v.text);
+        // 25-OH vitamin D normal (80 nmol/L): no vitamin D proposed, no liquid warning.
+        let m = vec![ionized(1.05, 1, "ica"), weight(22.0), lab(Analyte::VitaminD25Oh, 80.0, "nmol/L", "d")];
+        let p = full_plan(&r, seven(), m, vec![], VascularAccess::Unknown);
+        assert!(p.proposals.iter().all(|x| x.key != "cholecalciferol"));
+        assert!(p.issues.iter().all(|i| i.key != "vitamin-d-liquid"));
+    }
+
+    #[test]
+    fn iv_calcium_states_the_step_to_oral_calcium_with_vitamin_d() {
+        let r = rules();
+        let p = full_plan(&r, seven(), vec![ionized(0.85, 1, "ica"), weight(22.0)], vec![], VascularAccess::Peripheral);
+        assert!(p.proposals.iter().any(|x| x.key == "calcium-bolus"));
+        assert!(
+            p.notes.iter().any(|n| n.starts_with("After the IV calcium") && n.contains("oral calcium with vitamin D")),
+            "{:?}",
+            p.notes
+        );
+        assert!(
+            p.proposals.iter().any(|x| x.key == "cholecalciferol"),
+            "25-OH vitamin D unknown: maintenance with the calcium"
+        );
     }
 
     mod properties {

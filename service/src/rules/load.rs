@@ -374,13 +374,14 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
     product(&t.magnesium.product, "magnesium.product", problems);
     product(&t.vitamin_d.cholecalciferol_product, "vitamin_d.cholecalciferol_product", problems);
     product(&t.vitamin_d.calcitriol_product, "vitamin_d.calcitriol_product", problems);
-    let sets: [(&str, &[crate::rules::treatment_model::Chosen], &[String], &str); 6] = [
+    let sets: [(&str, &[crate::rules::treatment_model::Chosen], &[String], &str); 7] = [
         ("bolus", &t.bolus.chosen, &t.bolus.also_shown, "bolus"),
         ("infusion", &t.infusion.chosen, &t.infusion.also_shown, "infusion"),
         ("chloride", &t.chloride.chosen, &t.chloride.also_shown, "calcium_chloride_bolus"),
         ("oral", &t.oral.chosen, &t.oral.also_shown, "oral_daily"),
         ("magnesium", &t.magnesium.chosen, &t.magnesium.also_shown, "magnesium"),
         ("vitamin_d", &t.vitamin_d.chosen, &[], "cholecalciferol"),
+        ("vitamin_d.maintenance", &t.vitamin_d.maintenance, &[], "cholecalciferol"),
     ];
     for (name, chosen, also, kind) in sets {
         for id in chosen.iter().map(|c| &c.dose_source).chain(also.iter()) {
@@ -466,10 +467,82 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
             problems.push(format!("  treatment.vitamin_d.calcitriol_for: no cause '{c}'"));
         }
     }
+    for c in t.vitamin_d.treat_for.iter().chain(&t.vitamin_d.calcitriol_deferred_for).chain(&t.oral.binder_for) {
+        if !rules.causes.iter().any(|x| &x.id == c) {
+            problems.push(format!(
+                "  treatment (vitamin_d.treat_for, vitamin_d.calcitriol_deferred_for, oral.binder_for): no cause '{c}'"
+            ));
+        }
+    }
+    // IV speed: every IV proposal has a shortest duration and a fastest rate, both positive,
+    // and every IV calcium salt is held to a positive elemental-calcium ceiling.
+    for (at, speeds) in [
+        ("bolus.speed", &t.bolus.speed),
+        ("chloride.speed", &t.chloride.speed),
+        ("magnesium.speed", &t.magnesium.speed),
+    ] {
+        if speeds.is_empty() {
+            problems.push(format!("  treatment.{at}: no entries"));
+        }
+        for s in speeds.iter() {
+            if !(s.min_minutes.is_finite()
+                && s.min_minutes > 0.0
+                && s.max_salt_mg_per_min.is_finite()
+                && s.max_salt_mg_per_min > 0.0)
+            {
+                problems.push(format!(
+                    "  treatment.{at}: min_minutes {} and max_salt_mg_per_min {} must be positive",
+                    s.min_minutes, s.max_salt_mg_per_min
+                ));
+            }
+        }
+    }
+    if t.calcium_rate.is_empty() {
+        problems.push("  treatment.calcium_rate: no entries".to_owned());
+    }
+    // Every age from birth to 19 years has a speed and a ceiling: without one the IV proposal
+    // could not be timed and would be left out.
+    let spans: [(&str, Vec<&crate::rules::model::AgeSpan>); 4] = [
+        ("bolus.speed", t.bolus.speed.iter().map(|x| &x.applies).collect()),
+        ("chloride.speed", t.chloride.speed.iter().map(|x| &x.applies).collect()),
+        ("magnesium.speed", t.magnesium.speed.iter().map(|x| &x.applies).collect()),
+        ("calcium_rate", t.calcium_rate.iter().map(|x| &x.applies).collect()),
+    ];
+    for (at, list) in spans {
+        if let Some(gap) = first_uncovered_age(&list) {
+            problems.push(format!("  treatment.{at}: no entry covers age {gap}"));
+        }
+    }
+    for c in &t.calcium_rate {
+        if !(c.max_elemental_mg_per_min > 0.0 && c.max_elemental_mg_per_kg_min > 0.0) {
+            problems.push(format!(
+                "  treatment.calcium_rate: {} mg/min and {} mg/kg/min must be positive",
+                c.max_elemental_mg_per_min, c.max_elemental_mg_per_kg_min
+            ));
+        }
+    }
 }
 
 /// Every analyte with ranges has exactly one range for each sex on every day
 /// from birth to 19 years (checked day by day for a child born 2000-01-01).
+/// The first age (birth to 19 years, day by day) that no span covers, described.
+fn first_uncovered_age(spans: &[&crate::rules::model::AgeSpan]) -> Option<String> {
+    use crate::clinical::bands::at_least;
+    use crate::clinical::time::{Age, CivilDate};
+    let birth = CivilDate::new(2000, 1, 1)?;
+    for day in 0..(19 * 365 + 4) {
+        let on = CivilDate::from_days_since_epoch(birth.days_since_epoch() + day);
+        let Some(age) = Age::between(birth, on) else { continue };
+        if age.years >= 19 {
+            break;
+        }
+        if !spans.iter().any(|s| at_least(age, s.from) && !at_least(age, s.until)) {
+            return Some(age.describe());
+        }
+    }
+    None
+}
+
 fn tiling(rules: &RuleSet, problems: &mut Vec<String>) {
     use crate::clinical::time::{Age, CivilDate};
     use crate::rules::model::{AgeBound, AgeUnit, SexRestriction};
@@ -520,6 +593,23 @@ fn hex(bytes: &[u8]) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn an_iv_speed_list_must_cover_every_age() {
+        use crate::rules::model::{AgeBound, AgeSpan, AgeUnit};
+        let span = |from: (i32, AgeUnit), until: (i32, AgeUnit)| AgeSpan {
+            from: AgeBound { value: from.0 as _, unit: from.1 },
+            until: AgeBound { value: until.0 as _, unit: until.1 },
+        };
+        let neonate = span((0, AgeUnit::Days), (29, AgeUnit::Days));
+        let rest = span((29, AgeUnit::Days), (19, AgeUnit::Years));
+        assert_eq!(first_uncovered_age(&[&neonate, &rest]), None);
+        assert!(first_uncovered_age(&[&neonate]).is_some(), "a neonate-only list leaves children without a speed");
+        assert!(first_uncovered_age(&[&rest]).is_some(), "neonates not covered");
+        // The shipped rules cover every age (they load).
+        let t = &load(None).unwrap().rules.treatment;
+        assert_eq!(first_uncovered_age(&t.chloride.speed.iter().map(|x| &x.applies).collect::<Vec<_>>()), None);
+    }
 
     #[test]
     fn embedded_defaults_load() {

@@ -168,10 +168,8 @@ pub struct BolusPolicy {
     /// The site's own peripheral concentration limit, salt mg/mL (never above the label's).
     #[serde(default)]
     pub peripheral_max_mg_per_ml: Option<f64>,
-    /// Shortest duration, minutes.
-    pub min_minutes: f64,
-    /// Source of the duration.
-    pub min_minutes_source: String,
+    /// Shortest duration and fastest rate, by age.
+    pub speed: Vec<IvSpeed>,
     /// Diluent id the site uses.
     pub diluent: String,
     /// Why that diluent.
@@ -215,6 +213,40 @@ pub struct ChloridePolicy {
     pub chosen: Vec<Chosen>,
     /// Other dose sources shown.
     pub also_shown: Vec<String>,
+    /// Shortest duration and fastest rate, by age.
+    pub speed: Vec<IvSpeed>,
+    /// How it is prepared for the central line (dilution), with its source.
+    pub central_line_preparation: String,
+}
+
+/// The shortest duration and the fastest rate of one IV product for an age span.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct IvSpeed {
+    /// Ages.
+    pub applies: AgeSpan,
+    /// Never given over less than this many minutes.
+    pub min_minutes: f64,
+    /// Source of the shortest duration.
+    pub min_minutes_source: String,
+    /// Never faster than this many mg of the salt per minute.
+    pub max_salt_mg_per_min: f64,
+    /// Source of the fastest rate.
+    pub max_rate_source: String,
+}
+
+/// The ceiling on elemental calcium per minute that every IV calcium salt is held to.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct CalciumRateCeiling {
+    /// Ages.
+    pub applies: AgeSpan,
+    /// Elemental calcium, mg per minute.
+    pub max_elemental_mg_per_min: f64,
+    /// Elemental calcium, mg per kg per minute.
+    pub max_elemental_mg_per_kg_min: f64,
+    /// Source.
+    pub source: String,
 }
 
 /// Oral calcium.
@@ -251,6 +283,12 @@ pub struct OralPolicy {
     pub daily_limits: Vec<LimitByAge>,
     /// Timing and advice text.
     pub advice: String,
+    /// Timing when the calcium is given as a phosphate binder (kidney disease, high phosphate).
+    pub binder_advice: String,
+    /// Cause ids for which, with a high phosphate, the oral calcium is given as a phosphate binder.
+    pub binder_for: Vec<String>,
+    /// The plan's step from IV to oral calcium with vitamin D.
+    pub transition: String,
 }
 
 /// IV magnesium sulfate.
@@ -263,10 +301,8 @@ pub struct MagnesiumPolicy {
     pub chosen: Vec<Chosen>,
     /// Other dose sources shown.
     pub also_shown: Vec<String>,
-    /// Duration, minutes (the proposal's infusion time).
-    pub minutes: f64,
-    /// Source.
-    pub minutes_source: String,
+    /// Shortest duration and fastest rate, by age.
+    pub speed: Vec<IvSpeed>,
     /// Repeat text.
     pub repeat: String,
 }
@@ -291,6 +327,16 @@ pub struct VitaminDPolicy {
     pub calcitriol_note: String,
     /// Diet advice.
     pub diet_advice: String,
+    /// Maintenance choices by age (IU/day), proposed with calcium while 25-OH vitamin D is unknown.
+    pub maintenance: Vec<Chosen>,
+    /// Cause ids for which cholecalciferol treatment doses are proposed.
+    pub treat_for: Vec<String>,
+    /// When vitamin D is paired with calcium, and why.
+    pub pairing_source: String,
+    /// Text when calcitriol is deferred until phosphate is controlled.
+    pub calcitriol_deferred: String,
+    /// Cause ids for which calcitriol is deferred while the phosphate is high.
+    pub calcitriol_deferred_for: Vec<String>,
 }
 
 /// Safety settings that are the site's own (the published facts are in `safety_sources`).
@@ -308,6 +354,11 @@ pub struct SafetyPolicy {
     pub digoxin_current: RecencyWindow,
     /// When a recorded sodium bicarbonate counts as current.
     pub bicarbonate_current: RecencyWindow,
+    /// The calcium x phosphate product uses the albumin-adjusted total calcium when an albumin is
+    /// in the window.
+    pub ca_x_p_corrected_calcium: bool,
+    /// Source of that choice.
+    pub ca_x_p_corrected_source: String,
 }
 
 /// A medication counts as current for a safety check when it is running (an
@@ -430,6 +481,8 @@ pub struct TreatmentPolicy {
     pub infusion: InfusionPolicy,
     /// Chloride.
     pub chloride: ChloridePolicy,
+    /// Elemental calcium per minute, every IV salt.
+    pub calcium_rate: Vec<CalciumRateCeiling>,
     /// Oral.
     pub oral: OralPolicy,
     /// Magnesium.
@@ -525,4 +578,77 @@ pub struct GrowthPolicy {
     pub lightest_possible_kg: f64,
     /// Source.
     pub lightest_possible_source: String,
+}
+
+#[cfg(test)]
+mod tests {
+    /// One step of a path in the figures table: `name`, `name[id]` or `name[n]`.
+    fn step<'v>(v: &'v toml::Value, part: &str) -> Option<&'v toml::Value> {
+        let (name, key) = match part.split_once('[') {
+            Some((n, k)) => (n, Some(k.trim_end_matches(']'))),
+            None => (part, None),
+        };
+        let here = v.get(name)?;
+        match key {
+            None => Some(here),
+            Some(k) => {
+                let list = here.as_array()?;
+                match k.parse::<usize>() {
+                    Ok(n) => list.get(n),
+                    Err(_) => list.iter().find(|e| e.get("id").and_then(toml::Value::as_str) == Some(k)),
+                }
+            }
+        }
+    }
+
+    fn number(v: &toml::Value) -> Option<f64> {
+        v.as_float().or_else(|| v.as_integer().map(|i| i as f64))
+    }
+
+    #[test]
+    fn treatment_sources_figures_match_the_rule_data() {
+        // TREATMENT-SOURCES.md states figures in prose; its "Figures the rule data must match"
+        // table is the machine-readable copy, and every row must equal the rule file.
+        let md = include_str!("../../rules/TREATMENT-SOURCES.md");
+        let formulary: toml::Value = toml::from_str(include_str!("../../rules/formulary.toml")).expect("formulary");
+        let treatment: toml::Value = toml::from_str(include_str!("../../rules/treatment.toml")).expect("treatment");
+        let table = md
+            .split("<!-- figures:start -->")
+            .nth(1)
+            .and_then(|t| t.split("<!-- figures:end -->").next())
+            .expect("the figures table");
+        let mut checked = 0;
+        for line in table.lines().filter(|l| l.starts_with('|')).skip(2) {
+            let cells: Vec<&str> = line.trim_matches('|').split('|').map(str::trim).collect();
+            let [file, path, value] = cells[..] else { panic!("a row of three cells: {line}") };
+            let doc = match file {
+                "formulary" => &formulary,
+                "treatment" => &treatment,
+                other => panic!("unknown file {other} in {line}"),
+            };
+            let found = path.split('.').try_fold(doc, step).and_then(number);
+            let stated: f64 = value.parse().unwrap_or_else(|_| panic!("not a number: {line}"));
+            assert!(
+                found.is_some_and(|f| (f - stated).abs() <= 1e-9 * stated.abs().max(1.0)),
+                "TREATMENT-SOURCES.md says {path} = {stated}, the {file} rule data has {found:?}"
+            );
+            checked += 1;
+        }
+        assert!(checked >= 50, "only {checked} figures checked");
+    }
+
+    #[test]
+    fn treatment_sources_cite_no_unnamed_origin() {
+        // Figures cite a publication or are a project decision; no "memory", "brief" or slides.
+        for text in [
+            include_str!("../../rules/TREATMENT-SOURCES.md"),
+            include_str!("../../rules/treatment.toml"),
+            include_str!("../../rules/formulary.toml"),
+        ] {
+            let lower = text.to_lowercase();
+            for word in ["memory", "the brief", "project brief", "slides", "slideshare"] {
+                assert!(!lower.contains(word), "'{word}' found");
+            }
+        }
+    }
 }
