@@ -45,6 +45,7 @@ PROFILES = {
     "MedicationAdministration": "medicationadministration",
     "Medication": "medication",
     "Procedure": "procedure",
+    "Specimen": "specimen",
 }
 
 
@@ -360,6 +361,13 @@ EDGE_CASES = [
     ("Procedure performedAge not UCUM (age-1)", _proc(performedAge={"value": 3, "system": "http://example.org/units", "code": "yr"}), False, True),
     ("Procedure performedAge negative (age-1)", _proc(performedAge={"value": -1, "system": UCUM, "code": "a"}), False, True),
     ("Procedure performedDateTime with impossible hour", _proc(performedDateTime="2026-11-30T25:00:00Z"), False, False),
+    ("Specimen condition clotted, contained", _obs(contained=[{"resourceType": "Specimen", "id": "s1", "status": "available",
+        "condition": [{"coding": [{"system": "http://terminology.hl7.org/CodeSystem/v2-0493", "code": "CLOT"}]}]}],
+        specimen={"reference": "#s1"}), True, True),
+    ("Specimen condition text only, with a note", {"resourceType": "Specimen", "condition": [{"text": "slightly hemolysed"}],
+        "note": [{"text": "drawn through a line"}]}, True, True),
+    ("Specimen condition as a bare string", {"resourceType": "Specimen", "condition": "CLOT"}, False, False),
+    ("Specimen status not a SpecimenStatus code", {"resourceType": "Specimen", "status": "clotted"}, False, False),
     ("nested: Bundle entry MedicationRequest without intent", _bundle("collection", [PAT_ENTRY,
         {"fullUrl": "urn:uuid:5e0b7c52-8a53-4d0c-9f0e-3f3c1f6c2a04", "resource": _without(_mreq(), "intent")}]), False, True),
     ("nested: contained Medication with bad ingredient", dict(_without(_mreq(), "medicationCodeableConcept"),

@@ -432,8 +432,53 @@ impl FhirClient {
                 Err(f) => failed.push(f),
             }
         }
+        // The Specimens the results refer to, so their condition (clotted,
+        // hemolyzed) can be checked; only on the configured server.
+        let ids = specimen_ids(&entries, base);
+        if !ids.is_empty() {
+            let url = format!("{base}/Specimen?_id={}&_count={count}", urlencode(&ids.join(",")));
+            match self.search(url, "Specimen search", deadline).await {
+                Ok(found) => entries.extend(found.into_iter().map(|mut e| {
+                    if let Some(o) = e.as_object_mut() {
+                        o.remove("search");
+                    }
+                    e
+                })),
+                Err(f) => failed.push(f),
+            }
+        }
         Ok(Gathered { bundle: json!({ "resourceType": "Bundle", "type": "collection", "entry": entries }), failed })
     }
+}
+
+/// Ids of the Specimens that gathered Observations refer to on the configured
+/// server (`Specimen/id` or `{base}/Specimen/id`) and that are not already in
+/// hand. Contained specimens need no read; a reference to another server is
+/// never followed (the reader then says the specimen check could not run).
+fn specimen_ids(entries: &[Value], base: &str) -> Vec<String> {
+    let have: Vec<&str> = entries
+        .iter()
+        .filter_map(|e| e.get("resource"))
+        .filter(|r| r.get("resourceType").and_then(Value::as_str) == Some("Specimen"))
+        .filter_map(|r| r.get("id").and_then(Value::as_str))
+        .collect();
+    let mut ids: Vec<String> = Vec::new();
+    for r in entries.iter().filter_map(|e| e.get("resource")) {
+        if r.get("resourceType").and_then(Value::as_str) != Some("Observation") {
+            continue;
+        }
+        let Some(reference) = r.get("specimen").and_then(|s| s.get("reference")).and_then(Value::as_str) else {
+            continue;
+        };
+        let local = reference.strip_prefix(base).and_then(|x| x.strip_prefix('/')).unwrap_or(reference);
+        let Some(id) = local.strip_prefix("Specimen/") else { continue };
+        let id_ok =
+            !id.is_empty() && id.len() <= 64 && id.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'-' || b == b'.');
+        if id_ok && !have.contains(&id) && !ids.iter().any(|x| x == id) {
+            ids.push(id.to_owned());
+        }
+    }
+    ids
 }
 
 /// Percent-encode a query value (RFC 3986 unreserved characters kept).
@@ -447,4 +492,27 @@ pub fn urlencode(s: &str) -> String {
         }
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn only_specimens_on_the_configured_server_and_not_in_hand_are_read() {
+        let base = "https://ehr.example.org/fhir";
+        let obs = |specimen: &str| json!({ "resource": { "resourceType": "Observation", "specimen": { "reference": specimen } } });
+        let entries = vec![
+            obs("Specimen/s1"),
+            obs("https://ehr.example.org/fhir/Specimen/s2"),
+            obs("https://elsewhere.example.com/fhir/Specimen/s3"),
+            obs("#contained"),
+            obs("Specimen/s1"),
+            obs("Specimen/in-hand"),
+            obs("Specimen/bad id"),
+            json!({ "resource": { "resourceType": "Specimen", "id": "in-hand" } }),
+            json!({ "resource": { "resourceType": "Condition", "specimen": { "reference": "Specimen/s4" } } }),
+        ];
+        assert_eq!(specimen_ids(&entries, base), ["s1", "s2"]);
+    }
 }

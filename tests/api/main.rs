@@ -55,6 +55,9 @@ mod explain;
 // The workbench routes (issue 8); the page itself: tests/workbench/e2e.mjs.
 mod workbench;
 
+// Specimen problems (issue 13, section 5): the specimen cases through the binary, and the Specimen read in patient context.
+mod specimen;
+
 // Preterm weight z (UK-WHO preterm table, rcpchgrowth check values) and the dosing-weight rules built on it (issue 13).
 mod reference_preterm;
 

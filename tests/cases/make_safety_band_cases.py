@@ -1018,6 +1018,133 @@ safety_absent = ["weight", "weight-confirm"]
 calcium-infusion = ["5.4 mL/h x 24 h / 3.2 kg = 40.5 mL/kg/day", "101% of the day-1 fluid allowance of 40 mL/kg/day"]
 ''')
 
+# ---------------------------------------------------------------------------
+# Specimen problems (issue 13, section 5): Specimen.condition (HL7 v2 table 0493), the
+# result's own flags and notes, read as service/rules/specimen.toml says. Codes: v2-0493 CLOT
+# (Clotted) and HEM (Hemolyzed), verified in HL7 Terminology (THO) CodeSystem v2-0493.
+# Policy sources: CLSI C31-A2 and laboratory test directories (a clotted sample is rejected for
+# ionized calcium: the ionized result is set aside); Agana et al. J Appl Lab Med 2024 and Yang and
+# Tacker Clin Chim Acta 2025 (hemolysis lowers ionized calcium: used, with a named caution).
+# ---------------------------------------------------------------------------
+
+V2_0493 = "http://terminology.hl7.org/CodeSystem/v2-0493"
+LAB["alb"] = ("1751-7", "Albumin [Mass/volume] in Serum or Plasma", "Albumin", "g/dL")
+
+
+def specimen(case, condition=None, where="contained", reference=None, note=None):
+    """Give the Observation added last a specimen: a contained Specimen, a Bundle entry, or a
+    reference to a Specimen that is not in the request (where="elsewhere"), or none
+    (where="none"); optionally a note on the result."""
+    obs = case.entries[-1]["resource"]
+    spec = {
+        "resourceType": "Specimen",
+        "status": "available",
+        "type": {"text": "Whole blood, heparinised syringe"},
+        "subject": {"reference": case.subject},
+        "collection": {"collectedDateTime": obs["effectiveDateTime"]},
+    }
+    if condition:
+        code, display = condition
+        spec["condition"] = [{"coding": [{"system": V2_0493, "code": code, "display": display}]}]
+    if where == "contained":
+        spec["id"] = "spec"
+        obs["contained"] = [spec]
+        obs["specimen"] = {"reference": "#spec"}
+    elif where == "bundle":
+        url = case.urn()
+        case.entries.append({"fullUrl": url, "resource": spec})
+        obs["specimen"] = {"reference": url}
+    elif where == "elsewhere":
+        obs["specimen"] = {"reference": reference}
+    if note:
+        obs["note"] = [{"text": note}]
+    return case
+
+
+c = Case("specimen-clotted-ionized-seizure-toddler", "Wetherell", ["Bramwell"], "male", "2024-09-18")
+c.lab("ica", 0.78, R)
+specimen(c, ("CLOT", "Clotted"))
+c.lab("tca_mg", 7.0, R).lab("alb", 4.0, R).symptom("seizure", SZ).lab("weight", 12.0, W)
+write(c, f'''
+description = "Boy 2 y 2 mo with a seizure: ionized Ca 0.78 mmol/L on a sample whose contained Specimen is coded clotted (v2-0493 CLOT). A clotted whole-blood sample is rejected for ionized calcium (CLSI C31-A2; laboratory test directories), so the ionized result is set aside and named, and the status falls back to the total calcium of the same draw, 7.0 mg/dL with albumin 4.0 g/dL: adjusted 7.0 mg/dL = 1.75 mmol/L, at or below the severe adjusted grade 1.8 mmol/L, and with the seizure high. IV calcium is proposed on that basis, with the clotted sample stated."
+now = "{NOW}"
+severity = "high"
+adjusted_calcium = true
+# 7.0 + 0.8 x (4.0 - 4.0) = 7.0 mg/dL; 7.0 x 10 / 40.078 = 1.747 mmol/L <= 1.8 (severe).
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["specimen-clotted"]
+safety_absent = ["specimen-unread", "specimen-hemolyzed"]
+set_aside = [".contained[0].condition[0]"]
+[doses.calcium-bolus]
+# 12.0 kg x 50 mg/kg calcium gluconate = 600 mg, below the 1000 mg cap.
+min = 600.0
+max = 600.0
+''')
+
+c = Case("specimen-clotted-ionized-only-infant", "Wetherell", ["Ottilie"], "female", "2026-02-10")
+c.lab("ica", 0.80, R)
+specimen(c, ("CLOT", "Clotted"), where="bundle")
+c.symptom("seizure", SZ).lab("weight", 8.2, W)
+write(c, f'''
+description = "Girl 9 mo with a seizure: the only calcium is an ionized Ca 0.80 mmol/L whose Specimen (a Bundle entry) is coded clotted (v2-0493 CLOT). The ionized result is set aside (CLSI C31-A2; laboratory rejection criteria), so no calcium status is given and no dose is computed from it; the clotted sample is raised as a high-severity DetectedIssue whose mitigation asks for a repeat and says a seizing child is treated by local protocol without waiting."
+now = "{NOW}"
+status = "data-required"
+hypocalcemia = false
+safety_present = ["specimen-clotted"]
+proposals_absent = ["calcium-bolus", "calcium-infusion", "oral-calcium"]
+set_aside = [".specimen"]
+''')
+
+c = Case("specimen-hemolyzed-ionized-child", "Pentreath", ["Isolde"], "female", "2019-05-06")
+c.lab("ica", 0.85, R)
+specimen(c, ("HEM", "Hemolyzed"), where="bundle")
+c.symptom("seizure", SZ).lab("weight", 20.0, W)
+write(c, f'''
+description = "Girl 7 y 6 mo with a seizure: ionized Ca 0.85 mmol/L on a sample coded hemolyzed (v2-0493 HEM, Specimen in the Bundle). Hemolysis lowers measured ionized calcium (Agana et al. J Appl Lab Med 2024; Yang and Tacker Clin Chim Acta 2025) but the bias is modest, so the result is used (severe grade 0.9 and a seizure: high), IV calcium is proposed, and the hemolysis is named in a DetectedIssue and on the proposals."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["specimen-hemolyzed"]
+safety_absent = ["specimen-clotted", "specimen-unread"]
+[doses.calcium-bolus]
+# 20.0 kg x 50 mg/kg = 1000 mg, at the 1000 mg cap.
+min = 1000.0
+max = 1000.0
+''')
+
+c = Case("specimen-missing-ionized-child", "Pentreath", ["Lowen"], "male", "2018-08-21")
+c.lab("ica", 0.84, R)
+specimen(c, where="elsewhere", reference="Specimen/larkspur-spec-40417")
+c.lab("weight", 24.0, W)
+write(c, f'''
+description = "Boy 8 y 3 mo: ionized Ca 0.84 mmol/L (at or below the child severe grade 0.9: high) whose Observation.specimen refers to a Specimen that is not in the request: the specimen check could not run, and that is said as a DetectedIssue (specimen-unread, project decision) and on the IV proposals; the result is still used."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["specimen-unread"]
+safety_absent = ["specimen-clotted", "specimen-hemolyzed"]
+set_aside = [".specimen"]
+[doses.calcium-bolus]
+# 24.0 kg x 50 mg/kg = 1200 mg, capped at 1000 mg.
+min = 1000.0
+max = 1000.0
+''')
+
+c = Case("specimen-clot-in-note-child", "Ashcombe", ["Tamsin"], "female", "2020-03-09")
+c.lab("ica", 0.86, R)
+specimen(c, where="none", note="Small clot seen in the syringe; analysed as received.")
+c.symptom("seizure", SZ).lab("weight", 19.0, W)
+write(c, f'''
+description = "Girl 6 y 8 mo with a seizure: ionized Ca 0.86 mmol/L with no coded specimen condition but a note on the result saying a small clot was seen. Words in a note only give a caution (project decision: a note cannot be told from 'no clots seen'), so the result is used (severe and symptomatic: high), IV calcium is proposed, and the clot is named as read by text."
+now = "{NOW}"
+severity = "high"
+proposals = ["calcium-bolus", "calcium-infusion"]
+safety_present = ["specimen-clotted"]
+[doses.calcium-bolus]
+# 19.0 kg x 50 mg/kg = 950 mg, below the 1000 mg cap.
+min = 950.0
+max = 950.0
+''')
 
 
 # Medication records as US EHRs code them, and symptoms as charted (issue 13, sections 2 and 6).

@@ -220,6 +220,16 @@ pub fn read_labs(rules: &RuleSet, facts: &Facts, ctx: &Context) -> (Readings, Ve
             unused.push((other.source.clone(), "a more recent result of the same test was used".to_owned()));
         }
         match read_one(rules, ctx, m) {
+            // A specimen problem that falsely raises this test: only a low value counts.
+            Ok(r)
+                if r.outcome != LabOutcome::Low
+                    && let Some(f) = facts.specimen_of(m).into_iter().find(|f| f.masks_low) =>
+            {
+                unused.push((
+                    m.source.clone(),
+                    format!("from a {} specimen, which can falsely raise it: a value that is not low cannot exclude a low one; repeat it", f.label),
+                ));
+            }
             Ok(r) => {
                 readings.labs.insert(analyte, r);
             }

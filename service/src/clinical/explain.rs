@@ -228,6 +228,7 @@ pub fn trace(
     plan: Option<&TreatmentPlan>,
 ) -> Vec<Step> {
     let mut steps = Vec::new();
+    specimen_steps(assessment, &mut steps);
     status_steps(rules, assessment, &mut steps);
     if let Some(w) = workup {
         cause_steps(rules, w, &mut steps);
@@ -243,6 +244,41 @@ pub fn trace(
         steps.push(s);
     }
     steps
+}
+
+/// The specimen check of each result that had a specimen problem.
+fn specimen_steps(a: &Assessment, steps: &mut Vec<Step>) {
+    use super::facts::SpecimenAction;
+    for f in &a.specimen {
+        let rule = match f.key.as_str() {
+            "unread" => "specimen.unread_severity".to_owned(),
+            "other-condition" => "specimen.other_condition_severity".to_owned(),
+            key => format!("specimen.flags ({key})"),
+        };
+        let mut s = step(
+            Stage::Input,
+            rule,
+            "Does the result's specimen (Specimen.condition), or the result's own flags or notes, show a problem?",
+        );
+        s.inputs.push(input(f.result_text.clone(), &f.result));
+        if let Some(sp) = &f.specimen {
+            s.inputs.push(input("Specimen", sp));
+        }
+        s.basis = format!("{} (source: {})", f.effect, f.source);
+        s.result = format!(
+            "{}: {} ({}); {}",
+            f.label,
+            f.found,
+            f.read_from.label(),
+            match f.action {
+                SpecimenAction::SetAside => "the result was set aside",
+                SpecimenAction::Caution => "the result is used with a stated caution",
+                SpecimenAction::Unread => "the specimen check could not run; the result is used with a warning",
+                SpecimenAction::NoEffect => "no effect on the result",
+            }
+        );
+        steps.push(s);
+    }
 }
 
 fn status_steps(rules: &RuleSet, a: &Assessment, steps: &mut Vec<Step>) {

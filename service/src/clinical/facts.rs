@@ -311,6 +311,81 @@ pub struct PatientFacts {
     pub source: Source,
 }
 
+/// What was done with a result because of a specimen problem.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SpecimenAction {
+    /// The result was not used (the reader set it aside).
+    SetAside,
+    /// The result is used, with a stated caution.
+    Caution,
+    /// The Specimen could not be read: the specimen check did not run.
+    Unread,
+    /// A handling state that is not a defect: traced only.
+    NoEffect,
+}
+
+/// Where the specimen problem was read.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum SpecimenReadFrom {
+    /// Specimen.condition (coded).
+    Condition,
+    /// Specimen.status (coded).
+    Status,
+    /// Observation.interpretation (coded).
+    Interpretation,
+    /// The text of Observation.note or Specimen.note (words, not codes).
+    NoteText,
+    /// Observation.specimen (the reference that could not be resolved).
+    Reference,
+}
+
+impl SpecimenReadFrom {
+    /// Plain words for text.
+    pub fn label(self) -> &'static str {
+        match self {
+            Self::Condition => "coded in Specimen.condition",
+            Self::Status => "coded in Specimen.status",
+            Self::Interpretation => "coded in Observation.interpretation",
+            Self::NoteText => "read by text from a note (not coded)",
+            Self::Reference => "Observation.specimen",
+        }
+    }
+}
+
+/// A specimen problem found on one result.
+#[derive(Debug, Clone)]
+pub struct SpecimenFinding {
+    /// Rule key (`clotted`, `hemolyzed`, ...), `unread` or `other-condition`.
+    pub key: String,
+    /// Plain label ("clotted").
+    pub label: String,
+    /// What was done with the result.
+    pub action: SpecimenAction,
+    /// Where it was read.
+    pub read_from: SpecimenReadFrom,
+    /// The result's analyte.
+    pub analyte: Analyte,
+    /// The result, e.g. "Calcium.ionized [Moles/volume] in Blood 0.78 mmol/L at 2026-11-30T08:40:00-05:00".
+    pub result_text: String,
+    /// The result (the Measurement's source, or the Observation when set aside).
+    pub result: Source,
+    /// The Specimen, when one was read.
+    pub specimen: Option<Source>,
+    /// What was found, e.g. "v2-0493 CLOT (Clotted)" or the words quoted from a note.
+    pub found: String,
+    /// What it means for the result.
+    pub effect: String,
+    /// What to do.
+    pub mitigation: String,
+    /// Source of the policy.
+    pub source: String,
+    /// DetectedIssue severity (None for NoEffect).
+    pub severity: Option<crate::rules::model::IssueSeverity>,
+    /// The problem can falsely raise this result: a value that is not low
+    /// cannot exclude a low one.
+    pub masks_low: bool,
+}
+
 /// Everything the core reads.
 #[derive(Debug, Clone)]
 pub struct Facts {
@@ -336,6 +411,8 @@ pub struct Facts {
     pub birth_weight_kg: Option<f64>,
     /// Evaluation time, unix seconds.
     pub now: i64,
+    /// Specimen problems found on results (used or set aside).
+    pub specimen: Vec<SpecimenFinding>,
 }
 
 impl Facts {
@@ -344,5 +421,10 @@ impl Facts {
         let mut found: Vec<&Measurement> = self.measurements.iter().filter(|m| m.analyte == analyte).collect();
         found.sort_by_key(|m| std::cmp::Reverse(m.when.latest));
         found
+    }
+
+    /// Specimen problems on one used result (matched by its source).
+    pub fn specimen_of(&self, m: &Measurement) -> Vec<&SpecimenFinding> {
+        self.specimen.iter().filter(|f| f.action != SpecimenAction::SetAside && f.result == m.source).collect()
     }
 }

@@ -7,7 +7,9 @@
 //! age band's interval and grades from the rule data.
 
 use super::bands::{self, BandChoice, NoBand};
-use super::facts::{Analyte, Facts, Measurement, ResultStatus, Source, SymptomFinding};
+use super::facts::{
+    Analyte, Facts, Measurement, ResultStatus, Source, SpecimenAction, SpecimenFinding, SymptomFinding,
+};
 use super::format::{num, value_with_mg_dl};
 use super::time::When;
 use crate::rules::model::{AgeBand, Interval, IssueSeverity, RuleSet};
@@ -159,6 +161,9 @@ pub struct CalciumFinding {
     pub when: When,
     /// Some input was preliminary.
     pub preliminary: bool,
+    /// Specimen problems of the calcium (and albumin) used, or of a calcium
+    /// result set aside for one: said on every IV calcium proposal.
+    pub specimen_cautions: Vec<String>,
 }
 
 impl CalciumFinding {
@@ -236,6 +241,8 @@ pub struct Assessment {
     pub unused: Vec<Unused>,
     /// A usable Patient.birthDate is needed.
     pub needs_birth_date: bool,
+    /// Specimen problems found on the results read (used or set aside).
+    pub specimen: Vec<SpecimenFinding>,
 }
 
 struct Ctx<'a> {
@@ -246,6 +253,7 @@ struct Ctx<'a> {
     needs: Vec<DataNeed>,
     unused: Vec<Unused>,
     needs_birth_date: bool,
+    specimen_cautions: Vec<String>,
 }
 
 impl Ctx<'_> {
@@ -292,7 +300,9 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         needs: Vec::new(),
         unused: Vec::new(),
         needs_birth_date: false,
+        specimen_cautions: Vec::new(),
     };
+    specimen_set_aside(&mut ctx);
     let ionized = fresh(&mut ctx, Analyte::CalciumIonized);
     let totals = fresh(&mut ctx, Analyte::CalciumTotal);
     let albumins = fresh(&mut ctx, Analyte::Albumin);
@@ -541,6 +551,7 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
         effective_text: calcium.when_text.clone(),
         when: calcium.when,
         preliminary,
+        specimen_cautions: Vec::new(),
     };
     if finding.is_low() {
         let base = finding.grade.as_ref().map_or(rules.severity.below_interval, |g| g.severity);
@@ -597,6 +608,10 @@ pub fn assess(facts: &Facts, rules: &RuleSet) -> Assessment {
             ctx.need(Analyte::CalciumIonized, "A measured ionized calcium is the preferred test.");
         }
     }
+    if specimen_used(&mut ctx, measure, calcium, albumin) && status == GuidanceStatus::Success {
+        status = GuidanceStatus::DataRequested;
+    }
+    finding.specimen_cautions = ctx.specimen_cautions.clone();
     let derived = derived.map(|(mut d, _)| {
         let (c, g) = judge(d.value_mmol_l, &band.adjusted);
         d.classification = c;
@@ -640,7 +655,64 @@ fn finish(
         cautions: ctx.cautions,
         unused: ctx.unused,
         needs_birth_date: ctx.needs_birth_date,
+        specimen: ctx.facts.specimen.clone(),
     }
+}
+
+/// The calcium analytes the status rests on.
+fn is_calcium_input(a: Analyte) -> bool {
+    matches!(a, Analyte::CalciumIonized | Analyte::CalciumTotal | Analyte::CalciumAlbuminAdjusted | Analyte::Albumin)
+}
+
+/// Calcium results the reader set aside for a specimen problem: said as a
+/// caution, and an ionized calcium is asked for again.
+fn specimen_set_aside(ctx: &mut Ctx<'_>) {
+    let facts = ctx.facts;
+    for f in facts.specimen.iter().filter(|f| f.action == SpecimenAction::SetAside && is_calcium_input(f.analyte)) {
+        let text = format!(
+            "{} ({}) was set aside: the specimen is {} ({}; {}). {}",
+            f.result_text,
+            f.result.label(),
+            f.label,
+            f.found,
+            f.read_from.label(),
+            f.effect
+        );
+        ctx.cautions.push(text.clone());
+        ctx.specimen_cautions.push(text);
+        if f.analyte == Analyte::CalciumIonized {
+            ctx.need(
+                Analyte::CalciumIonized,
+                format!("The ionized calcium from a {} specimen was set aside; repeat it on a sound sample.", f.label),
+            );
+        }
+    }
+}
+
+/// Specimen problems of the results the status rests on; true when there is one.
+fn specimen_used(ctx: &mut Ctx<'_>, measure: Measure, calcium: &Measurement, albumin: Option<&Measurement>) -> bool {
+    let facts = ctx.facts;
+    let mut any = false;
+    for (m, what) in std::iter::once((calcium, measure_input_label(measure))).chain(albumin.map(|a| (a, "albumin"))) {
+        for f in facts.specimen_of(m) {
+            let text = match f.action {
+                SpecimenAction::NoEffect | SpecimenAction::SetAside => continue,
+                SpecimenAction::Unread => format!("The {what} used ({}): {}", f.result.label(), f.effect),
+                SpecimenAction::Caution => format!(
+                    "The {what} used ({}) is from a specimen {} ({}; {}). {}",
+                    f.result.label(),
+                    f.label,
+                    f.found,
+                    f.read_from.label(),
+                    f.effect
+                ),
+            };
+            any = true;
+            ctx.cautions.push(text.clone());
+            ctx.specimen_cautions.push(text);
+        }
+    }
+    any
 }
 
 fn describe_input(measure: Measure, m: &Measurement) -> String {
@@ -1033,6 +1105,65 @@ mod tests {
         let a = assess(&facts(child(), vec![ica]), &rules());
         assert!(a.finding.unwrap().preliminary);
         assert!(a.cautions.iter().any(|c| c.contains("preliminary")));
+    }
+
+    #[test]
+    fn a_clotted_ionized_calcium_set_aside_falls_back_to_the_adjusted_total_with_the_reason_stated() {
+        use crate::clinical::facts::SpecimenAction;
+        // The reader left the clotted ionized 0.78 out of the measurements and recorded why.
+        let clotted = ionized(0.78, 1, "ica");
+        let mut f = facts(child(), vec![total_mg(7.0, 1, "tca"), albumin_g_dl(4.0, 1, "alb")]);
+        f.specimen.push(specimen_finding(&clotted, "clotted", SpecimenAction::SetAside));
+        let a = assess(&f, &rules());
+        let finding = a.finding.unwrap();
+        // 7.0 + 0.8 x (4.0 - 4.0) = 7.0 mg/dL = 1.747 mmol/L, below the child adjusted limit 2.20.
+        assert_eq!(finding.measure, Measure::AlbuminAdjusted);
+        assert!(close(finding.value_mmol_l, 7.0 * 10.0 / 40.078, 1e-9));
+        assert!(a.cautions.iter().any(|c| c.contains("was set aside: the specimen is clotted")), "{:?}", a.cautions);
+        assert_eq!(finding.specimen_cautions.len(), 1, "said on the IV proposals");
+        let need = a.data_needs.iter().find(|n| n.analyte == Analyte::CalciumIonized).unwrap();
+        assert!(need.reason.contains("clotted specimen was set aside"), "{}", need.reason);
+        assert_eq!(a.specimen.len(), 1, "carried to the writer and the trace");
+
+        // Nothing else: no status, still said.
+        let mut f = facts(child(), vec![]);
+        f.specimen.push(specimen_finding(&clotted, "clotted", SpecimenAction::SetAside));
+        let a = assess(&f, &rules());
+        assert!(a.finding.is_none());
+        assert_eq!(a.status, GuidanceStatus::DataRequired);
+        assert!(a.cautions.iter().any(|c| c.contains("clotted")));
+    }
+
+    #[test]
+    fn a_caution_on_the_calcium_used_is_stated_and_asks_for_a_repeat() {
+        use crate::clinical::facts::SpecimenAction;
+        let ica = ionized(0.85, 1, "ica");
+        let mut f = facts(child(), vec![ica.clone()]);
+        f.specimen.push(specimen_finding(&ica, "hemolyzed", SpecimenAction::Caution));
+        let a = assess(&f, &rules());
+        let finding = a.finding.unwrap();
+        assert_eq!(finding.measure, Measure::Ionized);
+        assert!(finding.is_low());
+        assert_eq!(a.status, GuidanceStatus::DataRequested, "success without the specimen problem");
+        assert!(a.cautions.iter().any(|c| c.contains("is from a specimen hemolyzed")), "{:?}", a.cautions);
+        assert_eq!(finding.specimen_cautions.len(), 1);
+
+        // The check could not run: also stated.
+        let mut f = facts(child(), vec![ica.clone()]);
+        f.specimen.push(specimen_finding(&ica, "unread", SpecimenAction::Unread));
+        let a = assess(&f, &rules());
+        assert_eq!(a.status, GuidanceStatus::DataRequested);
+        assert!(a.cautions.iter().any(|c| c.contains("effect of unread")));
+
+        // A handling state, or a problem on another result: no caution on the status.
+        let mg = m(Analyte::Magnesium, 0.8, "mmol/L", (0.8, "mmol/L"), 1, "mg");
+        let mut f = facts(child(), vec![ica.clone(), mg.clone()]);
+        f.specimen.push(specimen_finding(&ica, "room-temperature", SpecimenAction::NoEffect));
+        f.specimen.push(specimen_finding(&mg, "hemolyzed", SpecimenAction::Caution));
+        let a = assess(&f, &rules());
+        assert_eq!(a.status, GuidanceStatus::Success);
+        assert!(a.finding.unwrap().specimen_cautions.is_empty());
+        assert_eq!(a.specimen.len(), 2, "both are still carried to the writer");
     }
 
     mod properties {

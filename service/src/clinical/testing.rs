@@ -92,6 +92,7 @@ pub fn facts(birth: Option<PartialDate>, measurements: Vec<Measurement>) -> Fact
         gestational_age_weeks: None,
         birth_weight_kg: None,
         now: now(),
+        specimen: Vec::new(),
     }
 }
 
@@ -163,4 +164,29 @@ pub fn facts_of(
     f.patient.gender = gender;
     f.events = events;
     f
+}
+
+/// A specimen problem on `m` as the reader records it (`action` SetAside: `m` is
+/// left out of the facts by the caller).
+pub fn specimen_finding(
+    m: &Measurement,
+    key: &str,
+    action: crate::clinical::facts::SpecimenAction,
+) -> crate::clinical::facts::SpecimenFinding {
+    crate::clinical::facts::SpecimenFinding {
+        key: key.into(),
+        label: key.into(),
+        action,
+        read_from: crate::clinical::facts::SpecimenReadFrom::Condition,
+        analyte: m.analyte,
+        result_text: format!("{} {}", m.analyte.key(), m.value),
+        result: m.source.clone(),
+        specimen: None,
+        found: format!("v2-0493 {key}"),
+        effect: format!("effect of {key}"),
+        mitigation: "repeat".into(),
+        source: "test".into(),
+        severity: Some(crate::rules::model::IssueSeverity::High),
+        masks_low: false,
+    }
 }

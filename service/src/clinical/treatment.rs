@@ -649,12 +649,25 @@ pub fn plan(
         vitamin_d(rules, &ctx, w, phosphate_high, &mut plan);
     }
     plan.notes.push(t.vitamin_d.diet_advice.clone());
+    specimen_caution(finding, &mut plan);
     safety_with_proposals(rules, facts, finding, &ctx, &mut plan);
     unidentified_medications(rules, facts, &mut plan);
     symptoms_unknown(rules, facts, finding, &mut plan);
     mark_name_matches(facts, &mut plan.issues);
     plan.weight = weight.ok();
     Some(plan)
+}
+
+/// IV calcium resting on a result with a specimen problem (or given while a
+/// calcium result was set aside for one) says so on the proposal itself.
+fn specimen_caution(finding: &CalciumFinding, plan: &mut TreatmentPlan) {
+    if finding.specimen_cautions.is_empty() {
+        return;
+    }
+    let said = finding.specimen_cautions.join(" ");
+    for p in plan.proposals.iter_mut().filter(|p| p.route == Route::Iv && p.key.starts_with("calcium")) {
+        p.text.push_str(&format!(" Specimen caution: {said}"));
+    }
 }
 
 /// A weight-based IV dose in salt mg, its volume of the product and how it was reached.

@@ -7,5 +7,6 @@ pub mod profiles;
 pub mod read;
 pub mod write;
 pub mod write_explain;
+pub mod write_specimen;
 pub mod write_treatment;
 pub mod write_workup;

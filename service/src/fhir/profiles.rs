@@ -17,6 +17,7 @@ const SOURCES: &[(&str, &str)] = &[
     ("medicationstatement", include_str!("../../../fhir-profiles/schemas/medicationstatement.schema.json")),
     ("medicationadministration", include_str!("../../../fhir-profiles/schemas/medicationadministration.schema.json")),
     ("procedure", include_str!("../../../fhir-profiles/schemas/procedure.schema.json")),
+    ("specimen", include_str!("../../../fhir-profiles/schemas/specimen.schema.json")),
 ];
 
 /// One schema error, located.
@@ -40,11 +41,14 @@ pub struct Profiles {
     medication_statement: Validator,
     medication_administration: Validator,
     procedure: Validator,
+    specimen: Validator,
 }
 
 impl std::fmt::Debug for Profiles {
     fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        f.write_str("Profiles(bundle, parameters, patient, observation, condition, medication records, procedure)")
+        f.write_str(
+            "Profiles(bundle, parameters, patient, observation, condition, medication records, procedure, specimen)",
+        )
     }
 }
 
@@ -69,6 +73,8 @@ pub enum Kind {
     MedicationAdministration,
     /// Procedure.
     Procedure,
+    /// Specimen (read through the results that refer to it).
+    Specimen,
 }
 
 impl Profiles {
@@ -91,6 +97,7 @@ impl Profiles {
             medication_statement: next()?,
             medication_administration: next()?,
             procedure: next()?,
+            specimen: next()?,
         })
     }
 
@@ -105,6 +112,7 @@ impl Profiles {
             Kind::MedicationStatement => &self.medication_statement,
             Kind::MedicationAdministration => &self.medication_administration,
             Kind::Procedure => &self.procedure,
+            Kind::Specimen => &self.specimen,
         }
     }
 

@@ -13,7 +13,8 @@ use super::datetime::{self, DateError};
 use super::outcome::{Issue, IssueCode, IssueSeverityLevel, RequestError};
 use super::profiles::{Kind, Profiles};
 use crate::clinical::facts::{
-    Analyte, Code, Facts, Gender, Measurement, PatientFacts, ResultStatus, Source, SymptomFinding,
+    Analyte, Code, Facts, Gender, Measurement, PatientFacts, ResultStatus, Source, SpecimenAction, SpecimenFinding,
+    SpecimenReadFrom, SymptomFinding,
 };
 use crate::clinical::format::num;
 use crate::clinical::time::When;
@@ -22,6 +23,8 @@ use crate::rules::model::{ObservationCode, RuleSet, SymptomCode};
 
 #[path = "read_events.rs"]
 mod events;
+#[path = "read_specimen.rs"]
+mod specimen;
 
 /// The UCUM system URI.
 pub const UCUM: &str = "http://unitsofmeasure.org";
@@ -86,6 +89,8 @@ struct Reader<'a> {
     now: i64,
     /// Finding Observations that could be a symptom but are in no list (read_events.rs).
     unclassified_observations: Vec<crate::clinical::facts::OpenRecord>,
+    /// Entry indices of the Specimens a result referred to (read by the specimen check).
+    specimens_read: Vec<usize>,
 }
 
 fn str_at<'v>(v: &'v Value, key: &str) -> Option<&'v str> {
@@ -217,8 +222,16 @@ pub fn read_value(
             ));
         }
     };
-    let mut reader =
-        Reader { access, rules, profiles, prefix, set_aside: Vec::new(), now, unclassified_observations: Vec::new() };
+    let mut reader = Reader {
+        access,
+        rules,
+        profiles,
+        prefix,
+        set_aside: Vec::new(),
+        now,
+        unclassified_observations: Vec::new(),
+        specimens_read: Vec::new(),
+    };
     let (facts, patient_reference) = reader.bundle(bundle)?;
     Ok(Ingested {
         facts,
@@ -364,13 +377,16 @@ impl<'a> Reader<'a> {
         let mut unclassified = Vec::new();
         let mut events = Vec::new();
         let mut gestation = None;
+        let mut specimen = Vec::new();
         let mut birth_weight = None;
         for e in &entries {
             if e.index == patient_index {
                 continue;
             }
             match e.resource_type {
-                "Observation" => self.observation(e, &index, patient, &mut measurements, &mut symptoms),
+                "Observation" => {
+                    self.observation(e, &index, patient, &entries, &mut measurements, &mut symptoms, &mut specimen)
+                }
                 "Condition" => self.condition(e, &index, patient, &mut symptoms, &mut events, &mut unclassified),
                 "MedicationRequest" | "MedicationStatement" | "MedicationAdministration" => {
                     self.medication(e, &index, patient, &entries, &mut events, &mut unidentified)
@@ -378,8 +394,14 @@ impl<'a> Reader<'a> {
                 "Procedure" => self.procedure(e, &index, patient, &mut events),
                 "Medication" => self
                     .ignore(e, "Medication resources are read only through the medication records that refer to them"),
+                // Read through the results that refer to them; the others are listed below.
+                "Specimen" => {}
                 other => self.ignore(e, format!("resource type {other} is not read by this version of the rules")),
             }
+        }
+        let read = std::mem::take(&mut self.specimens_read);
+        for e in entries.iter().filter(|e| e.resource_type == "Specimen" && !read.contains(&e.index)) {
+            self.ignore(e, "no result read here refers to this Specimen");
         }
         // Gestational age is a fact about the patient, not a result to judge.
         measurements.retain(|m: &Measurement| {
@@ -408,6 +430,7 @@ impl<'a> Reader<'a> {
                 gestational_age_weeks: gestation,
                 birth_weight_kg: birth_weight,
                 now: self.now,
+                specimen,
             },
             patient_reference,
         ))
@@ -593,13 +616,16 @@ impl<'a> Reader<'a> {
         true
     }
 
+    #[allow(clippy::too_many_arguments, reason = "the bundle walk's accumulators, one per kind of fact")]
     fn observation(
         &mut self,
         e: &Entry<'_>,
         index: &Index<'_>,
         patient: &Entry<'_>,
+        entries: &[Entry<'_>],
         measurements: &mut Vec<Measurement>,
         symptoms: &mut Vec<SymptomFinding>,
+        specimen: &mut Vec<SpecimenFinding>,
     ) {
         if !self.common_checks(e, Kind::Observation) {
             return;
@@ -648,14 +674,25 @@ impl<'a> Reader<'a> {
             }
             return;
         }
+        let mut found = Vec::new();
         if let Some(code) = lab
             && let Some(m) = self.quantity(e, "", r, code, status, when, &when_text)
         {
-            measurements.push(m);
+            found.push(m);
         }
         for (k, code) in component_codes {
             let Some(comp) = components.get(k) else { continue };
             if let Some(m) = self.quantity(e, &format!(".component[{k}]"), comp, code, status, when, &when_text) {
+                found.push(m);
+            }
+        }
+        if found.is_empty() {
+            return;
+        }
+        // The specimen check: Specimen.condition, the result's own flags, notes.
+        let flags = self.specimen_flags(e, index, entries, patient);
+        for m in found {
+            if self.specimen_check(e, &m, &flags, specimen) {
                 measurements.push(m);
             }
         }

@@ -165,6 +165,11 @@ pub fn result_bundle(
         entries.push(entry(urn("hypocalcemia"), issue));
     }
 
+    // Specimen problems (clotted, hemolyzed, specimen not read, ...).
+    let so = super::write_specimen::specimen_output(ctx, &subject, &device, &now, a);
+    targets.extend(so.targets.iter().cloned());
+    entries.extend(so.entries);
+
     // Work-up: causes and next tests.
     let mut wo = match (workup, low) {
         (Some(w), Some(f)) => Some(super::write_workup::workup_output(ctx, &subject, &device, &now, f, w)),
@@ -242,6 +247,9 @@ pub fn result_bundle(
     }
     for c in &a.cautions {
         notes.push(json!({ "text": format!("Caution: {c}") }));
+    }
+    for n in &so.notes {
+        notes.push(json!({ "text": n }));
     }
     for n in &a.data_needs {
         notes.push(json!({ "text": format!("Data needed ({}): {}", analyte_label(ctx, n.analyte), n.reason) }));

@@ -22,6 +22,7 @@ pub const DEFAULT_FILES: &[(&str, &str)] = &[
     ("formulary.toml", include_str!("../../rules/formulary.toml")),
     ("growth.toml", include_str!("../../rules/growth.toml")),
     ("treatment.toml", include_str!("../../rules/treatment.toml")),
+    ("specimen.toml", include_str!("../../rules/specimen.toml")),
 ];
 
 /// The JSON Schema every merged rule document must pass.
@@ -255,6 +256,12 @@ fn consistency(rules: &RuleSet) -> Result<(), RuleError> {
         }
     }
     workup_consistency(rules, &mut problems);
+    let mut flags = std::collections::BTreeSet::new();
+    for f in &rules.specimen.flags {
+        if !flags.insert((&f.system, &f.code)) || rules.specimen.flags.iter().filter(|g| g.key == f.key).count() > 1 {
+            problems.push(format!("  specimen.flags: {} ({} {}) is listed twice", f.key, f.system, f.code));
+        }
+    }
     if problems.is_empty() { Ok(()) } else { Err(RuleError::Inconsistent(problems)) }
 }
 
@@ -730,6 +737,19 @@ mod tests {
         doc["bands"][0]["ionized"]["grades"][0]["at_or_below"] = serde_json::json!(5.0);
         let err = from_document(doc).unwrap_err();
         assert!(matches!(err, RuleError::Inconsistent(_)), "{err}");
+    }
+
+    #[test]
+    fn a_specimen_flag_listed_twice_is_inconsistent() {
+        let mut doc = Value::Object(serde_json::Map::new());
+        for (name, text) in DEFAULT_FILES {
+            merge(&mut doc, parse_toml(name, text).unwrap(), "");
+        }
+        let flags = doc["specimen"]["flags"].as_array_mut().unwrap();
+        let copy = flags[0].clone();
+        flags.push(copy);
+        let err = from_document(doc).unwrap_err();
+        assert!(err.to_string().contains("specimen.flags: clotted"), "{err}");
     }
 
     #[test]

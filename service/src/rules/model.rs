@@ -78,6 +78,77 @@ pub struct RuleSet {
     pub magnesium_sulfate_administration: super::treatment_model::MagnesiumAdministration,
     /// Published safety facts, by key.
     pub safety_sources: std::collections::BTreeMap<String, super::treatment_model::SafetySource>,
+    /// Specimen problems and what they mean for the results read.
+    pub specimen: SpecimenRules,
+}
+
+/// Specimen problems (service/rules/specimen.toml).
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SpecimenRules {
+    /// Severity when a referenced Specimen could not be read.
+    pub unread_severity: IssueSeverity,
+    /// Why.
+    pub unread_source: String,
+    /// Severity of a Specimen.condition code without an entry here.
+    pub other_condition_severity: IssueSeverity,
+    /// Why.
+    pub other_condition_source: String,
+    /// Why free text only ever gives a caution.
+    pub text_source: String,
+    /// The flags: specimen conditions and result interpretations.
+    pub flags: Vec<SpecimenFlag>,
+}
+
+/// One specimen condition or result flag, and its policy.
+#[derive(Debug, Clone, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SpecimenFlag {
+    /// Stable key (DetectedIssue identifier `specimen-<key>`).
+    pub key: String,
+    /// Plain label ("clotted").
+    pub label: String,
+    /// Code system.
+    pub system: String,
+    /// Code.
+    pub code: String,
+    /// Display, as verified.
+    pub display: String,
+    /// DetectedIssue severity; None: a handling state, traced only.
+    #[serde(deserialize_with = "severity_or_none")]
+    pub severity: Option<IssueSeverity>,
+    /// Analyte keys whose result is set aside when coded ("any": every analyte).
+    pub set_aside_for: Vec<String>,
+    /// Lower-case stems looked for in note text.
+    pub text_terms: Vec<String>,
+    /// Analyte keys the flag can falsely raise: a result that is not low is
+    /// not used by the work-up (it cannot exclude a low value).
+    #[serde(default)]
+    pub not_reassuring_for: Vec<String>,
+    /// What it means for the result.
+    pub effect: String,
+    /// What to do.
+    pub mitigation: String,
+    /// Source.
+    pub source: String,
+}
+
+impl SpecimenFlag {
+    /// Whether a coded flag sets a result of this analyte aside.
+    pub fn sets_aside(&self, analyte: Analyte) -> bool {
+        self.set_aside_for.iter().any(|k| k == "any" || k == analyte.key())
+    }
+}
+
+fn severity_or_none<'de, D: serde::Deserializer<'de>>(d: D) -> Result<Option<IssueSeverity>, D::Error> {
+    let s = String::deserialize(d)?;
+    match s.as_str() {
+        "none" => Ok(None),
+        "low" => Ok(Some(IssueSeverity::Low)),
+        "moderate" => Ok(Some(IssueSeverity::Moderate)),
+        "high" => Ok(Some(IssueSeverity::High)),
+        other => Err(serde::de::Error::custom(format!("unknown severity '{other}'"))),
+    }
 }
 
 /// Sex restriction of a range.
