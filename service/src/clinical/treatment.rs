@@ -1402,10 +1402,21 @@ fn measure_vitamin_d<'r>(
         let upper = lower + step;
         let near = |a: f64| {
             let off = (a * iu / per_day - 1.0) * 100.0;
-            format!("{} {unit} = {} IU ({}% {})", num_trim(a), num_trim(a * iu), num_trim(off.abs().round()), if off >= 0.0 { "above" } else { "below" })
+            format!(
+                "{} {unit} = {} IU ({}% {})",
+                num_trim(a),
+                num_trim(a * iu),
+                num_trim(off.abs().round()),
+                if off >= 0.0 { "above" } else { "below" }
+            )
         };
         let steps = if lower < step - 1e-9 { near(upper) } else { format!("{} or {}", near(lower), near(upper)) };
-        not_used.push(format!("{}: {} {unit} exactly; in {} {unit} steps {steps}", p.label, num_trim_sig(exact), num_trim(step)));
+        not_used.push(format!(
+            "{}: {} {unit} exactly; in {} {unit} steps {steps}",
+            p.label,
+            num_trim_sig(exact),
+            num_trim(step)
+        ));
     }
     Err(not_used)
 }
@@ -1551,11 +1562,7 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, p
                 (
                     first,
                     per_day,
-                    format!(
-                        "{} IU once daily. No volume is proposed: {detail} {}",
-                        num_trim(per_day),
-                        v.unmeasurable
-                    ),
+                    format!("{} IU once daily. No volume is proposed: {detail} {}", num_trim(per_day), v.unmeasurable),
                     format!("{} IU a day: no volume is proposed.", num_trim(per_day)),
                 )
             }
@@ -2994,7 +3001,12 @@ mod tests {
         // 1600 IU 20% below: neither within 10%, and 2000 is no syringe mark: not measurable.
         let e = measure_vitamin_d(o, &[&d2], 2000.0).err().expect("0.25 mL is not measurable");
         assert_eq!(e.len(), 1);
-        assert!(e[0].contains("0.25 mL exactly; in 0.1 mL steps 0.2 mL = 1600 IU (20% below) or 0.3 mL = 2400 IU (20% above)"), "{e:?}");
+        assert!(
+            e[0].contains(
+                "0.25 mL exactly; in 0.1 mL steps 0.2 mL = 1600 IU (20% below) or 0.3 mL = 2400 IU (20% above)"
+            ),
+            "{e:?}"
+        );
         // 600 IU / 8000 = 0.075 mL: the smallest step, 0.1 mL = 800 IU, is 33% above.
         let e = measure_vitamin_d(o, &[&d2], 600.0).err().expect("0.075 mL is not measurable");
         assert!(e[0].contains("0.075 mL exactly; in 0.1 mL steps 0.1 mL = 800 IU (33% above)"), "{e:?}");
@@ -3018,11 +3030,21 @@ mod tests {
         }
         // In a plan: an infant of 4 months without a 25-OH vitamin D, oral calcium, maintenance
         // 400 IU/day (under 1 year) at the syringe mark, 0.05 mL, with the drop/mL warning.
-        let p = full_plan(&r, born_days_ago(120), vec![ionized(1.05, 1, "ica"), weight(6.5)], vec![], VascularAccess::Unknown);
+        let p = full_plan(
+            &r,
+            born_days_ago(120),
+            vec![ionized(1.05, 1, "ica"), weight(6.5)],
+            vec![],
+            VascularAccess::Unknown,
+        );
         let v = find(&p, "cholecalciferol");
         assert!(v.title.starts_with("Ergocalciferol (vitamin D2), maintenance dose"), "{}", v.title);
         assert_eq!(v.dose, Some(Qty { value: 400.0, unit: "[iU]" }));
-        assert!(v.text.contains("400 IU once daily = the 400 IU mark of the syringe supplied with Ergocalciferol"), "{}", v.text);
+        assert!(
+            v.text.contains("400 IU once daily = the 400 IU mark of the syringe supplied with Ergocalciferol"),
+            "{}",
+            v.text
+        );
         assert!(v.text.contains("(400 IU / 8000 IU per mL = 0.05 mL, not 0.05 drops)"), "{}", v.text);
         assert!(v.text.contains("measure it only with that syringe"), "{}", v.text);
         let warn = p.issues.iter().find(|i| i.key == "vitamin-d-liquid").expect("liquid warning");
@@ -3041,7 +3063,13 @@ mod tests {
         for p in &mut r.products {
             p.syringe_marks_iu.clear();
         }
-        let p = full_plan(&r, born_days_ago(120), vec![ionized(1.05, 1, "ica"), weight(6.5)], vec![], VascularAccess::Unknown);
+        let p = full_plan(
+            &r,
+            born_days_ago(120),
+            vec![ionized(1.05, 1, "ica"), weight(6.5)],
+            vec![],
+            VascularAccess::Unknown,
+        );
         let v = find(&p, "cholecalciferol");
         assert!(v.title.starts_with("Vitamin D, maintenance dose"), "{}", v.title);
         assert_eq!(v.dose, Some(Qty { value: 400.0, unit: "[iU]" }));
