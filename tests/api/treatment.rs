@@ -281,7 +281,7 @@ async fn symptomatic_hypocalcemia_gets_a_capped_bolus_then_an_infusion() {
     // paired with the calcium (the plan states the later step to oral calcium).
     assert!(proposal(&result, "Oral elemental calcium").is_none(), "{titles:?}");
     assert!(
-        medication_requests(&result).iter().all(|m| route(m) == IV_ROUTE || text(m).contains("Cholecalciferol")),
+        medication_requests(&result).iter().all(|m| route(m) == IV_ROUTE || text(m).contains("calciferol (vitamin D")),
         "{titles:?}"
     );
 }
@@ -830,8 +830,8 @@ async fn nutritional_vitamin_d_deficiency_gets_cholecalciferol_for_90_days() {
     let result = app.assess_ok(&s.bundle()).await;
     let d = must(&result, "Cholecalciferol");
     assert_eq!(route(d), ORAL_ROUTE);
-    // SPEG 6 months-12 years: 3000-6400 IU/day, pick low = 3000 IU once daily; 400 IU per mL
-    // drops: 3000 / 400 = 7.5 mL; for 90 days (treatment_days).
+    // SPEG 6 months-12 years: 3000-6400 IU/day, pick low = 3000 IU once daily; the 3000 IU/mL
+    // colecalciferol solution (UK SmPC): 3000 / 3000 = 1 mL; for 90 days (treatment_days).
     assert_eq!(dose(d), (3000.0, "[iU]".to_owned()));
     let repeat = &dosage(d)["timing"]["repeat"];
     assert_eq!(repeat["frequency"], 1);
@@ -839,7 +839,7 @@ async fn nutritional_vitamin_d_deficiency_gets_cholecalciferol_for_90_days() {
     assert_eq!(repeat["boundsDuration"]["value"], 90);
     assert_eq!(repeat["boundsDuration"]["code"], "d");
     assert!(
-        text(d).contains("3000 IU once daily = 3000 IU / 400 IU per mL = 7.5 mL of Cholecalciferol"),
+        text(d).contains("3000 IU once daily = 3000 IU / 3000 IU per mL = 1 mL: give 1 mL of Colecalciferol"),
         "{}",
         text(d)
     );

@@ -786,7 +786,7 @@ max = 1000.0
 c = Case("vitamin-d-with-oral-calcium-25oh-unknown", "Harbottle", ["Emrys"], "male", "2022-08-09")
 c.lab("ica", 1.05, R).lab("weight", 16.0, W)
 write(c, f'''
-description = "Boy 4 y 3 mo, ionized Ca 1.05 mmol/L without symptoms, 25-OH vitamin D not measured: oral calcium with feeds or meals (ZA STG 'given with meals') paired with vitamin D (Munns 2016 global consensus pairs cholecalciferol with calcium); while 25-OH vitamin D is unknown, the maintenance dose 600 IU/day from 1 year (IOM 2011 RDA), shown in IU and in mL of the 400 IU/mL liquid, with the drop/mL warning."
+description = "Boy 4 y 3 mo, ionized Ca 1.05 mmol/L without symptoms, 25-OH vitamin D not measured: oral calcium with feeds or meals (ZA STG 'given with meals') paired with vitamin D (Munns 2016 global consensus pairs cholecalciferol with calcium); while 25-OH vitamin D is unknown, the maintenance dose 600 IU/day from 1 year (IOM 2011 RDA), shown in IU and in mL of the 3000 IU/mL colecalciferol solution (UK SmPC, emc 8091: 0.2 mL), with the drop/mL warning."
 now = "{NOW}"
 proposals = ["oral-calcium", "cholecalciferol"]
 proposals_absent = ["calcium-bolus", "calcitriol"]
@@ -797,7 +797,7 @@ safety_absent = ["phosphate-high", "caxp", "weight"]
 min = 2.0
 max = 2.0
 [doses.cholecalciferol]
-# 600 IU once daily = 600 / 400 IU per mL = 1.5 mL.
+# 600 IU once daily = 600 / 3000 IU per mL (SmPC emc 8091) = 0.2 mL, on the 0.1 mL step.
 min = 600.0
 max = 600.0
 ''')
@@ -818,7 +818,7 @@ safety_absent = ["phosphate-high", "caxp", "weight"]
 min = 399.0
 max = 401.0
 [doses.cholecalciferol]
-# 3000 IU once daily = 7.5 mL of 400 IU/mL.
+# 3000 IU once daily = 3000 / 3000 IU per mL (SmPC emc 8091) = 1 mL.
 min = 3000.0
 max = 3000.0
 ''')

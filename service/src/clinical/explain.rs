@@ -213,6 +213,12 @@ const SAFETY_CHECKS: &[(&str, &str, &str, Applies)] = &[
         Applies::WithVitaminD,
     ),
     (
+        "vitamin-d-dose-unmeasurable",
+        "treatment.vitamin_d (liquids, measure_source), treatment.oral (0.1 mL step, rounding tolerance)",
+        "Can a vitamin D liquid of verified strength measure the daily dose, in oral-syringe steps or at a mark of its own syringe?",
+        Applies::WithVitaminD,
+    ),
+    (
         "oral-dose-rounding",
         "treatment.oral (rounding tolerance)",
         "Can a product measure the oral dose within the rounding tolerance?",

@@ -1320,6 +1320,107 @@ fn magnesium(rules: &RuleSet, ctx: &Context, w: &Weight) -> Option<MedProposal> 
     })
 }
 
+/// How a vitamin D liquid measures a daily dose.
+enum LiquidMeasure<'r> {
+    /// An amount in the product's steps (mL in oral-syringe steps, or whole drops).
+    Amount { p: &'r Product, amount: f64, given: f64, unit: &'static str, not_unit: &'static str },
+    /// A mark of the syringe supplied with the product (its label), in IU.
+    Mark { p: &'r Product, mark: f64 },
+}
+
+impl<'r> LiquidMeasure<'r> {
+    fn product(&self) -> &'r Product {
+        match self {
+            Self::Amount { p, .. } | Self::Mark { p, .. } => p,
+        }
+    }
+
+    /// IU given.
+    fn given(&self) -> f64 {
+        match self {
+            Self::Amount { given, .. } => *given,
+            Self::Mark { mark, .. } => *mark,
+        }
+    }
+}
+
+/// The first of `products` that measures `per_day` IU: in the oral-syringe step
+/// (`liquid_round_ml`; whole drops for a per-drop product), stepped down while above the
+/// rounding tolerance, and within it; or at a syringe mark within the tolerance. `Err` with
+/// why each product was not used.
+fn measure_vitamin_d<'r>(
+    o: &OralPolicy,
+    products: &[&'r Product],
+    per_day: f64,
+) -> Result<LiquidMeasure<'r>, Vec<String>> {
+    let tolerance = o.rounding_tolerance_pct;
+    let within = |iu: f64| ((iu / per_day - 1.0) * 100.0).abs() <= tolerance + 1e-9;
+    let mut not_used = Vec::new();
+    if !(per_day.is_finite() && per_day > 0.0) {
+        not_used.push(format!("the dose, {per_day} IU, is not a positive number"));
+        return Err(not_used);
+    }
+    for p in products {
+        let Some(iu) = p.iu.filter(|v| v.is_finite() && *v > 0.0) else {
+            not_used.push(format!("{}: no IU strength", p.label));
+            continue;
+        };
+        let (step, unit, not_unit) = match p.strength_per.as_str() {
+            "mL" => (o.liquid_round_ml, "mL", "drops"),
+            "drop" => (1.0, "drops", "mL"),
+            _ => {
+                not_used.push(format!("{}: not a liquid", p.label));
+                continue;
+            }
+        };
+        if step > 0.0 {
+            let highest = per_day * (1.0 + tolerance / 100.0);
+            let mut amount = round_to(per_day / iu, step);
+            while amount > 0.0 && amount * iu > highest + 1e-9 {
+                amount = round_to(amount - step, step);
+            }
+            if amount >= step - 1e-9 && within(amount * iu) {
+                let unit = if unit == "drops" && (amount - 1.0).abs() < 1e-9 { "drop" } else { unit };
+                return Ok(LiquidMeasure::Amount { p, amount, given: amount * iu, unit, not_unit });
+            }
+        }
+        let mark = p
+            .syringe_marks_iu
+            .iter()
+            .copied()
+            .filter(|m| within(*m))
+            .min_by(|a, b| (a - per_day).abs().total_cmp(&(b - per_day).abs()));
+        if let Some(mark) = mark {
+            return Ok(LiquidMeasure::Mark { p, mark });
+        }
+        let exact = per_day / iu;
+        if step <= 0.0 {
+            not_used.push(format!("{}: no measuring step", p.label));
+            continue;
+        }
+        let lower = (exact / step).floor() * step;
+        let upper = lower + step;
+        let near = |a: f64| {
+            let off = (a * iu / per_day - 1.0) * 100.0;
+            format!(
+                "{} {unit} = {} IU ({}% {})",
+                num_trim(a),
+                num_trim(a * iu),
+                num_trim(off.abs().round()),
+                if off >= 0.0 { "above" } else { "below" }
+            )
+        };
+        let steps = if lower < step - 1e-9 { near(upper) } else { format!("{} or {}", near(lower), near(upper)) };
+        not_used.push(format!(
+            "{}: {} {unit} exactly; in {} {unit} steps {steps}",
+            p.label,
+            num_trim_sig(exact),
+            num_trim(step)
+        ));
+    }
+    Err(not_used)
+}
+
 /// Vitamin D with the calcium (2016 global consensus on nutritional rickets pairs
 /// cholecalciferol with calcium): a treatment dose when a nutritional cause is likely or
 /// 25-OH vitamin D is low; a maintenance dose while 25-OH vitamin D is not measured, calcium
@@ -1341,21 +1442,16 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, p
     let maintain = !treat && d25.is_none() && calcium_proposed && specialist_ids.is_empty() && deferred.is_empty();
     let choices = if treat { &v.chosen } else { &v.maintenance };
     if (treat || maintain)
-        && let (Some(c), Some(p)) = (chosen(ctx, choices), product(rules, &v.cholecalciferol_product))
-        && let (Some(d), Some(iu)) = (dose_source(rules, &c.dose_source), p.iu)
+        && let Some(c) = chosen(ctx, choices)
+        && let Some(d) = dose_source(rules, &c.dose_source)
     {
         let per_day = pick(d, c.pick).min(c.max_single.unwrap_or(f64::INFINITY));
-        let amount = per_day / iu;
-        let (measure, not_measure) = match p.strength_per.as_str() {
-            "mL" => ("mL", "drops"),
-            "drop" => (if (amount - 1.0).abs() < 1e-9 { "drop" } else { "drops" }, "mL"),
-            other => (other, ""),
+        let ids = std::iter::once(&v.cholecalciferol_product).chain(&v.other_liquid_products);
+        let products: Vec<&Product> = ids.filter_map(|id| product(rules, id)).collect();
+        let Some(first) = products.first().copied() else {
+            return;
         };
-        let not_text = if not_measure.is_empty() {
-            String::new()
-        } else {
-            format!(" ({} {measure}, not {} {not_measure})", num_trim(amount), num_trim(amount))
-        };
+        let o = &rules.treatment.oral;
         let why = if treat {
             let mut reasons = treat_causes.clone();
             if d25_low {
@@ -1366,29 +1462,126 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, p
             "25-OH vitamin D is not measured: a maintenance dose with the calcium while it is measured; if it is low, the treatment dose for the age replaces it".to_owned()
         };
         let course = if treat {
-            format!(" for {} days ({}), then maintenance", v.treatment_days, v.treatment_source)
+            format!(" For {} days ({}), then maintenance.", v.treatment_days, v.treatment_source)
         } else {
             String::new()
         };
+        let kind = if treat { "treatment" } else { "maintenance" };
+        let measured = measure_vitamin_d(o, &products, per_day);
+        let (p, given, how, warning) = match &measured {
+            Ok(m) => {
+                let p = m.product();
+                let iu = p.iu.unwrap_or(f64::NAN);
+                let exact = per_day / iu;
+                let caution = p.caution.as_deref().map_or(String::new(), |c| format!(" {c}"));
+                let (how, warning) = match m {
+                    LiquidMeasure::Amount { amount, given, unit, not_unit, .. } => {
+                        let rounded = if (amount - exact).abs() < 1e-9 {
+                            String::new()
+                        } else {
+                            let off = (given / per_day - 1.0) * 100.0;
+                            format!(
+                                ", measured in {} {unit} steps: {} {unit} = {} IU, {}% {} the dose",
+                                num_trim(o.liquid_round_ml),
+                                num_trim(*amount),
+                                num_trim(*given),
+                                num_trim(off.abs().round()),
+                                if off >= 0.0 { "above" } else { "below" }
+                            )
+                        };
+                        (
+                            format!(
+                                "{} IU once daily = {} IU / {} IU per {} = {} {unit}{rounded}: give {} {unit} of {} ({} {unit}, not {} {not_unit}), with an oral syringe ({}).{caution}",
+                                num_trim(per_day),
+                                num_trim(per_day),
+                                num_trim(iu),
+                                p.strength_per,
+                                num_trim_sig(exact),
+                                num_trim(*amount),
+                                p.label,
+                                num_trim(*amount),
+                                num_trim(*amount),
+                                v.measure_source
+                            ),
+                            format!(
+                                "{} IU a day is {} {unit} of {} ({} IU per {}).",
+                                num_trim(*given),
+                                num_trim(*amount),
+                                p.label,
+                                num_trim(iu),
+                                p.strength_per
+                            ),
+                        )
+                    }
+                    LiquidMeasure::Mark { mark, .. } => {
+                        let ml = mark / iu;
+                        (
+                            format!(
+                                "{} IU once daily = the {} IU mark of the syringe supplied with {} ({} IU / {} IU per mL = {} mL, not {} drops); measure it only with that syringe, because an oral syringe in {} mL steps cannot measure it within {}% ({}).{caution}",
+                                num_trim(per_day),
+                                num_trim(*mark),
+                                p.label,
+                                num_trim(*mark),
+                                num_trim(iu),
+                                num_trim_sig(ml),
+                                num_trim_sig(ml),
+                                num_trim(o.liquid_round_ml),
+                                num_trim(o.rounding_tolerance_pct),
+                                v.measure_source
+                            ),
+                            format!(
+                                "{} IU a day is the {} IU mark of the syringe supplied with {} ({} mL at {} IU per mL); another syringe, a dropper or a count of drops gives another dose.",
+                                num_trim(*mark),
+                                num_trim(*mark),
+                                p.label,
+                                num_trim_sig(ml),
+                                num_trim(iu)
+                            ),
+                        )
+                    }
+                };
+                (p, m.given(), how, warning)
+            }
+            Err(not_used) => {
+                let detail = format!(
+                    "{} IU a day cannot be measured within {}% with the formulary's vitamin D liquids ({}). Not used: {}.",
+                    num_trim(per_day),
+                    num_trim(o.rounding_tolerance_pct),
+                    v.measure_source,
+                    not_used.join("; ")
+                );
+                plan.issues.push(SafetyIssue {
+                    key: "vitamin-d-dose-unmeasurable",
+                    act_code: Some(("DOSE", "Dosage problem")),
+                    severity: IssueSeverity::Moderate,
+                    title: "No measurable vitamin D liquid dose".into(),
+                    detail: detail.clone(),
+                    implicated: Vec::new(),
+                    mitigation: v.unmeasurable.clone(),
+                });
+                (
+                    first,
+                    per_day,
+                    format!("{} IU once daily. No volume is proposed: {detail} {}", num_trim(per_day), v.unmeasurable),
+                    format!("{} IU a day: no volume is proposed.", num_trim(per_day)),
+                )
+            }
+        };
+        let name = if measured.is_err() {
+            "Vitamin D"
+        } else {
+            match p.ingredient.as_str() {
+                "cholecalciferol" => "Cholecalciferol (vitamin D3)",
+                "ergocalciferol" => "Ergocalciferol (vitamin D2)",
+                _ => "Vitamin D",
+            }
+        };
         plan.proposals.push(MedProposal {
             key: "cholecalciferol",
-            title: if treat {
-                "Cholecalciferol (vitamin D3), treatment dose, with the calcium".into()
-            } else {
-                "Cholecalciferol (vitamin D3), maintenance dose, with the calcium".into()
-            },
+            title: format!("{name}, {kind} dose, with the calcium"),
             product: p.clone(),
-            text: format!(
-                "{why}. {} IU once daily = {} IU / {} IU per {} = {} {measure} of {}{not_text}{course}. Paired with the calcium: {}",
-                num_trim(per_day),
-                num_trim(per_day),
-                num_trim(iu),
-                p.strength_per,
-                num_trim(amount),
-                p.label,
-                v.pairing_source
-            ),
-            dose: Some(Qty { value: per_day, unit: "[iU]" }),
+            text: format!("{why}. {how}{course} Paired with the calcium: {}", v.pairing_source),
+            dose: Some(Qty { value: given, unit: "[iU]" }),
             rate: None,
             per_day: Some(1),
             days: if treat { Some(v.treatment_days) } else { None },
@@ -1398,7 +1591,7 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, p
             alternative: false,
             specialist: false,
         });
-        if matches!(p.strength_per.as_str(), "mL" | "drop") {
+        if products.iter().any(|p| matches!(p.strength_per.as_str(), "mL" | "drop")) {
             let (confusion_source, _) = fact(rules, "vitamin_d_drop_strength_confusion");
             let confusion =
                 rules.safety_sources.get("vitamin_d_drop_strength_confusion").map_or("", |f| f.text.as_str());
@@ -1412,16 +1605,9 @@ fn vitamin_d(rules: &RuleSet, ctx: &Context, w: &Workup, phosphate_high: bool, p
                 act_code: Some(("DOSE", "Dosage problem")),
                 severity: IssueSeverity::Moderate,
                 title: "Liquid vitamin D: drops and mL are not the same".into(),
-                detail: format!(
-                    "{} IU a day is {} {measure} of {} ({} IU per {}). {confusion} ({confusion_source}).{unverified}",
-                    num_trim(per_day),
-                    num_trim(amount),
-                    p.label,
-                    num_trim(iu),
-                    p.strength_per
-                ),
+                detail: format!("{warning} {confusion} ({confusion_source}).{unverified}"),
                 implicated: Vec::new(),
-                mitigation: "Prescribe in IU and in the measure of the named product (mL or drops); check the stocked product's label for IU per mL or per drop, and give the measuring device that comes with it.".into(),
+                mitigation: "Prescribe in IU and in the measure of the named product (mL, or the mark of its own syringe), never in drops alone; check the stocked product's label for IU per mL, and give the measuring device that comes with it.".into(),
             });
         }
     }
@@ -2748,30 +2934,169 @@ mod tests {
     #[test]
     fn oral_calcium_timing_is_with_meals_and_vitamin_d_is_paired() {
         // 7 years, 22 kg, asymptomatic (oral). 25-OH vitamin D not measured: maintenance
-        // 600 IU/day = 600 / 400 IU per mL = 1.5 mL, with the drop/mL warning.
+        // 600 IU/day = 600 / 3000 IU per mL (the colecalciferol SmPC strength) = 0.2 mL, on the
+        // 0.1 mL step exactly, with the drop/mL warning.
         let r = rules();
         let p = full_plan(&r, seven(), vec![ionized(1.05, 1, "ica"), weight(22.0)], vec![], VascularAccess::Unknown);
         let o = find(&p, "oral-calcium");
         assert!(o.text.contains("Give with feeds or meals"), "{}", o.text);
         assert!(!o.text.contains("30 minutes"), "{}", o.text);
         let v = find(&p, "cholecalciferol");
-        assert!(v.title.contains("maintenance"), "{}", v.title);
-        assert!(v.text.contains("600 IU once daily = 600 IU / 400 IU per mL = 1.5 mL of"), "{}", v.text);
-        assert!(v.text.contains("(1.5 mL, not 1.5 drops)"), "{}", v.text);
-        assert!(p.issues.iter().any(|i| i.key == "vitamin-d-liquid"));
+        assert!(v.title.starts_with("Cholecalciferol (vitamin D3), maintenance"), "{}", v.title);
+        assert_eq!(v.product.id, "colecalciferol_oral_solution_3000iu_per_ml");
+        assert!(v.text.contains("600 IU once daily = 600 IU / 3000 IU per mL = 0.2 mL: give 0.2 mL of"), "{}", v.text);
+        assert!(v.text.contains("(0.2 mL, not 0.2 drops)"), "{}", v.text);
+        // The label's licence and excipient travel with the proposal.
+        assert!(v.text.contains("children over 12 years of age") && v.text.contains("almond oil"), "{}", v.text);
+        assert_eq!(v.dose, Some(Qty { value: 600.0, unit: "[iU]" }));
+        let warn = p.issues.iter().find(|i| i.key == "vitamin-d-liquid").expect("liquid warning");
+        assert!(warn.detail.starts_with("600 IU a day is 0.2 mL of Colecalciferol"), "{}", warn.detail);
+        assert!(!warn.detail.contains("not verified"), "{}", warn.detail);
+        assert!(p.issues.iter().all(|i| i.key != "vitamin-d-dose-unmeasurable"));
         // 25-OH vitamin D low (20 nmol/L): the treatment dose, SPEG 6 months-12 years low end
-        // 3000 IU = 7.5 mL, for 90 days.
+        // 3000 IU = 3000 / 3000 = 1 mL, for 90 days.
         let m = vec![ionized(1.05, 1, "ica"), weight(22.0), lab(Analyte::VitaminD25Oh, 20.0, "nmol/L", "d")];
         let p = full_plan(&r, seven(), m, vec![], VascularAccess::Unknown);
         let v = find(&p, "cholecalciferol");
         assert_eq!(v.dose, Some(Qty { value: 3000.0, unit: "[iU]" }));
         assert_eq!(v.days, Some(90));
-        assert!(v.text.contains("= 7.5 mL of"), "{}", v.text);
+        assert!(v.text.contains("= 1 mL: give 1 mL of Colecalciferol"), "{}", v.text);
+        assert!(v.title.contains("treatment dose"), "{}", v.title);
         // 25-OH vitamin D normal (80 nmol/L): no vitamin D proposed, no liquid warning.
         let m = vec![ionized(1.05, 1, "ica"), weight(22.0), lab(Analyte::VitaminD25Oh, 80.0, "nmol/L", "d")];
         let p = full_plan(&r, seven(), m, vec![], VascularAccess::Unknown);
         assert!(p.proposals.iter().all(|x| x.key != "cholecalciferol"));
         assert!(p.issues.iter().all(|i| i.key != "vitamin-d-liquid"));
+    }
+
+    /// The formulary's two vitamin D liquids, by id.
+    fn vitamin_d_liquid(r: &RuleSet, id: &str) -> Product {
+        r.products.iter().find(|p| p.id == id).cloned().expect(id)
+    }
+
+    #[test]
+    fn vitamin_d_volumes_are_rounded_to_the_oral_syringe_step_within_the_tolerance() {
+        let r = rules();
+        let o = &r.treatment.oral;
+        assert_eq!((o.liquid_round_ml, o.rounding_tolerance_pct), (0.1, 10.0));
+        let d3 = vitamin_d_liquid(&r, "colecalciferol_oral_solution_3000iu_per_ml");
+        let d2 = vitamin_d_liquid(&r, "ergocalciferol_oral_solution_8000iu_per_ml");
+        let amount = |m: Result<LiquidMeasure, Vec<String>>| match m {
+            Ok(LiquidMeasure::Amount { p, amount, given, .. }) => (p.id.clone(), amount, given),
+            Ok(LiquidMeasure::Mark { p, mark }) => panic!("{}: mark {mark}", p.id),
+            Err(e) => panic!("{e:?}"),
+        };
+        // 2000 IU / 3000 IU per mL = 0.667 mL -> 0.7 mL = 2100 IU, 5% above (<= 10%).
+        let (id, ml, iu) = amount(measure_vitamin_d(o, &[&d3, &d2], 2000.0));
+        assert_eq!(id, d3.id);
+        assert!((ml - 0.7).abs() < 1e-9 && (iu - 2100.0).abs() < 1e-6, "{ml} {iu}");
+        // 6000 IU / 3000 = 2 mL exactly.
+        let (_, ml, iu) = amount(measure_vitamin_d(o, &[&d3, &d2], 6000.0));
+        assert!((ml - 2.0).abs() < 1e-9 && (iu - 6000.0).abs() < 1e-6);
+        // 8000 IU/mL alone. 3000 IU / 8000 = 0.375 mL -> 0.4 mL = 3200 IU, 6.7% above: measured.
+        let (id, ml, iu) = amount(measure_vitamin_d(o, &[&d2], 3000.0));
+        assert_eq!(id, d2.id);
+        assert!((ml - 0.4).abs() < 1e-9 && (iu - 3200.0).abs() < 1e-6, "{ml} {iu}");
+        // 2000 IU / 8000 = 0.25 mL: 0.3 mL = 2400 IU is 20% above (stepped down), 0.2 mL =
+        // 1600 IU 20% below: neither within 10%, and 2000 is no syringe mark: not measurable.
+        let e = measure_vitamin_d(o, &[&d2], 2000.0).err().expect("0.25 mL is not measurable");
+        assert_eq!(e.len(), 1);
+        assert!(
+            e[0].contains(
+                "0.25 mL exactly; in 0.1 mL steps 0.2 mL = 1600 IU (20% below) or 0.3 mL = 2400 IU (20% above)"
+            ),
+            "{e:?}"
+        );
+        // 600 IU / 8000 = 0.075 mL: the smallest step, 0.1 mL = 800 IU, is 33% above.
+        let e = measure_vitamin_d(o, &[&d2], 600.0).err().expect("0.075 mL is not measurable");
+        assert!(e[0].contains("0.075 mL exactly; in 0.1 mL steps 0.1 mL = 800 IU (33% above)"), "{e:?}");
+    }
+
+    #[test]
+    fn vitamin_d_400_iu_is_the_labelled_syringe_mark_not_a_volume() {
+        let r = rules();
+        let o = &r.treatment.oral;
+        let d3 = vitamin_d_liquid(&r, "colecalciferol_oral_solution_3000iu_per_ml");
+        let d2 = vitamin_d_liquid(&r, "ergocalciferol_oral_solution_8000iu_per_ml");
+        // 400 IU / 3000 = 0.133 mL -> 0.1 mL = 300 IU, 25% below: not used. 400 IU / 8000 =
+        // 0.05 mL -> 0.1 mL = 800 IU, 100% above: no volume; the label's syringe is marked at
+        // 400 IU, so the mark measures it exactly.
+        match measure_vitamin_d(o, &[&d3, &d2], 400.0) {
+            Ok(LiquidMeasure::Mark { p, mark }) => {
+                assert_eq!(p.id, d2.id);
+                assert!((mark - 400.0).abs() < 1e-9);
+            }
+            other => panic!("{:?}", other.err()),
+        }
+        // In a plan: an infant of 4 months without a 25-OH vitamin D, oral calcium, maintenance
+        // 400 IU/day (under 1 year) at the syringe mark, 0.05 mL, with the drop/mL warning.
+        let p = full_plan(
+            &r,
+            born_days_ago(120),
+            vec![ionized(1.05, 1, "ica"), weight(6.5)],
+            vec![],
+            VascularAccess::Unknown,
+        );
+        let v = find(&p, "cholecalciferol");
+        assert!(v.title.starts_with("Ergocalciferol (vitamin D2), maintenance dose"), "{}", v.title);
+        assert_eq!(v.dose, Some(Qty { value: 400.0, unit: "[iU]" }));
+        assert!(
+            v.text.contains("400 IU once daily = the 400 IU mark of the syringe supplied with Ergocalciferol"),
+            "{}",
+            v.text
+        );
+        assert!(v.text.contains("(400 IU / 8000 IU per mL = 0.05 mL, not 0.05 drops)"), "{}", v.text);
+        assert!(v.text.contains("measure it only with that syringe"), "{}", v.text);
+        let warn = p.issues.iter().find(|i| i.key == "vitamin-d-liquid").expect("liquid warning");
+        assert!(warn.detail.contains("is the 400 IU mark of the syringe supplied with"), "{}", warn.detail);
+        assert!(p.issues.iter().all(|i| i.key != "vitamin-d-dose-unmeasurable"));
+    }
+
+    #[test]
+    fn when_no_vitamin_d_liquid_measures_the_dose_no_volume_is_proposed_and_it_is_flagged() {
+        // The 8000 IU/mL liquid alone, without its syringe mark: 400 IU = 0.05 mL cannot be
+        // measured in 0.1 mL steps (0.1 mL = 800 IU, 100% above), so the dose is given in IU
+        // only, with the instruction, and a warning.
+        let mut r = rules();
+        r.treatment.vitamin_d.cholecalciferol_product = "ergocalciferol_oral_solution_8000iu_per_ml".into();
+        r.treatment.vitamin_d.other_liquid_products.clear();
+        for p in &mut r.products {
+            p.syringe_marks_iu.clear();
+        }
+        let p = full_plan(
+            &r,
+            born_days_ago(120),
+            vec![ionized(1.05, 1, "ica"), weight(6.5)],
+            vec![],
+            VascularAccess::Unknown,
+        );
+        let v = find(&p, "cholecalciferol");
+        assert!(v.title.starts_with("Vitamin D, maintenance dose"), "{}", v.title);
+        assert_eq!(v.dose, Some(Qty { value: 400.0, unit: "[iU]" }));
+        assert!(v.text.contains("400 IU once daily. No volume is proposed"), "{}", v.text);
+        assert!(v.text.contains(&r.treatment.vitamin_d.unmeasurable), "{}", v.text);
+        assert!(!v.text.contains("give 0"), "{}", v.text);
+        assert!(v.text.contains("0.05 mL exactly; in 0.1 mL steps 0.1 mL = 800 IU (100% above)"), "{}", v.text);
+        let i = p.issues.iter().find(|i| i.key == "vitamin-d-dose-unmeasurable").expect("unmeasurable warning");
+        assert_eq!(i.severity, IssueSeverity::Moderate);
+        assert_eq!(i.mitigation, r.treatment.vitamin_d.unmeasurable);
+        // The drop/mL warning still stands: a liquid is in play.
+        let warn = p.issues.iter().find(|i| i.key == "vitamin-d-liquid").expect("liquid warning");
+        assert!(warn.detail.starts_with("400 IU a day: no volume is proposed."), "{}", warn.detail);
+    }
+
+    #[test]
+    fn an_unverified_vitamin_d_strength_is_said_in_the_liquid_warning() {
+        // The 400 IU/mL product (strength unverified) configured as the only liquid: 600 IU =
+        // 1.5 mL, on the step; the warning says the strength is unverified.
+        let mut r = rules();
+        r.treatment.vitamin_d.cholecalciferol_product = "cholecalciferol_drops_400iu_per_ml".into();
+        r.treatment.vitamin_d.other_liquid_products.clear();
+        let p = full_plan(&r, seven(), vec![ionized(1.05, 1, "ica"), weight(22.0)], vec![], VascularAccess::Unknown);
+        let v = find(&p, "cholecalciferol");
+        assert!(v.text.contains("600 IU / 400 IU per mL = 1.5 mL: give 1.5 mL of"), "{}", v.text);
+        let warn = p.issues.iter().find(|i| i.key == "vitamin-d-liquid").expect("liquid warning");
+        assert!(warn.detail.contains("not verified from its own label"), "{}", warn.detail);
     }
 
     #[test]

@@ -373,6 +373,9 @@ fn treatment_consistency(rules: &RuleSet, problems: &mut Vec<String>) {
     }
     product(&t.magnesium.product, "magnesium.product", problems);
     product(&t.vitamin_d.cholecalciferol_product, "vitamin_d.cholecalciferol_product", problems);
+    for id in &t.vitamin_d.other_liquid_products {
+        product(id, "vitamin_d.other_liquid_products", problems);
+    }
     product(&t.vitamin_d.calcitriol_product, "vitamin_d.calcitriol_product", problems);
     let sets: [(&str, &[crate::rules::treatment_model::Chosen], &[String], &str); 7] = [
         ("bolus", &t.bolus.chosen, &t.bolus.also_shown, "bolus"),

@@ -43,9 +43,15 @@ pub struct Product {
     /// mEq per unit.
     #[serde(default)]
     pub meq: Option<f64>,
-    /// IU per unit (cholecalciferol).
+    /// IU per unit (vitamin D).
     #[serde(default)]
     pub iu: Option<f64>,
+    /// IU marks on the dosing syringe supplied with the product, as its label states them.
+    #[serde(default)]
+    pub syringe_marks_iu: Vec<f64>,
+    /// Label facts shown with every proposal of the product (licensed ages, excipients).
+    #[serde(default)]
+    pub caution: Option<String>,
     /// Micrograms per unit (calcitriol).
     #[serde(default)]
     pub mcg: Option<f64>,
@@ -311,8 +317,15 @@ pub struct MagnesiumPolicy {
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub struct VitaminDPolicy {
-    /// Cholecalciferol product id.
+    /// The vitamin D liquid tried first (product id).
     pub cholecalciferol_product: String,
+    /// Further vitamin D liquids, tried in order when the first cannot measure the dose.
+    #[serde(default)]
+    pub other_liquid_products: Vec<String>,
+    /// Why a vitamin D volume must be measurable (step and tolerance from `treatment.oral`).
+    pub measure_source: String,
+    /// What to do when no liquid measures the dose.
+    pub unmeasurable: String,
     /// Treatment choices by age (IU/day).
     pub chosen: Vec<Chosen>,
     /// Days of treatment.
