@@ -67,6 +67,20 @@ def main() -> int:
         failures.append("a HorizontalPodAutoscaler with minReplicas >= 2 is required")
     if "PodDisruptionBudget" not in docs:
         failures.append("a PodDisruptionBudget is required")
+    # /notifications makes the service call the EHR with its credential: the base either turns
+    # inbound authorization on or restricts who may reach the pods (issue 14).
+    env = docs["Deployment"]["spec"]["template"]["spec"]["containers"][0].get("env", []) if dep else []
+    auth_on = {"name": "CALCIUM_CDS_AUTH", "value": "true"} in env
+    np = docs.get("NetworkPolicy")
+    restricted = (
+        np is not None
+        and "Ingress" in np["spec"].get("policyTypes", [])
+        and all(rule.get("from") for rule in np["spec"].get("ingress", []))
+    )
+    ok = auth_on or restricted
+    print(f"{'ok  ' if ok else 'FAIL'} inbound authorization on, or a NetworkPolicy restricting ingress")
+    if not ok:
+        failures.append("inbound authorization on, or a NetworkPolicy restricting ingress, is required")
     for f in failures:
         print(f"FAIL {f}")
     return 1 if failures else 0

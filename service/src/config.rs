@@ -234,7 +234,10 @@ impl InboundAuthArgs {
             }
             (Some(path), None) => std::fs::read_to_string(path)
                 .map_err(|e| format!("cannot read the JWKS file {}: {e}", path.display()))?,
-            (None, Some(url)) => fetch_jwks(url)?,
+            (None, Some(url)) => {
+                crate::upstream::https_or_loopback("CALCIUM_CDS_AUTH_JWKS_URL", url)?;
+                fetch_jwks(url)?
+            }
             (None, None) => {
                 return Err("CALCIUM_CDS_AUTH is on but neither CALCIUM_CDS_AUTH_JWKS_FILE nor _JWKS_URL is set".into());
             }
@@ -280,6 +283,12 @@ impl ServeArgs {
             problems.push("otlp-queue and otlp-batch must be at least 1".into());
         }
         if let Err(e) = self.telemetry.export_settings() {
+            problems.push(e);
+        }
+        // Keys that decide who may call the service are fetched from here.
+        if let Some(url) = &self.auth.jwks_url
+            && let Err(e) = crate::upstream::https_or_loopback("CALCIUM_CDS_AUTH_JWKS_URL", url)
+        {
             problems.push(e);
         }
         problems
@@ -629,6 +638,10 @@ impl UpstreamArgs {
             (None, Some(source)) => crate::upstream::Auth::Smart(std::sync::Arc::new(source)),
             (None, None) => crate::upstream::Auth::None,
         };
+        // A credential is sent to the base: never in the clear over a network.
+        if !matches!(auth, crate::upstream::Auth::None) {
+            crate::upstream::https_or_loopback("CALCIUM_CDS_FHIR_BASE_URL (a credential is configured)", base)?;
+        }
         let http = reqwest::Client::builder()
             .pool_idle_timeout(std::time::Duration::from_secs(90))
             .build()
@@ -674,6 +687,8 @@ impl UpstreamArgs {
         if !matches!(parsed.scheme(), "http" | "https") {
             return Err(format!("CALCIUM_CDS_SMART_TOKEN_URL must be http or https, not {}", parsed.scheme()));
         }
+        // The signed client assertion and the access token cross this connection.
+        crate::upstream::https_or_loopback("CALCIUM_CDS_SMART_TOKEN_URL", url)?;
         let alg =
             self.smart_alg.parse::<crate::smart::SigningAlg>().map_err(|e| format!("CALCIUM_CDS_SMART_ALG: {e}"))?;
         let pem = std::fs::read(key_file)

@@ -436,8 +436,16 @@ async fn notifications(req: HttpRequest, payload: web::Payload, state: web::Data
             "No upstream FHIR server is configured (CALCIUM_CDS_FHIR_BASE_URL): events cannot be worked on.",
         ));
     };
-    let (mut queued, mut duplicates) = (0, 0);
+    let (mut queued, mut duplicates, mut refused) = (0, 0, 0);
     for job in jobs {
+        // A focus on another server is never read (it would receive the EHR
+        // credential): refused here, counted, and said in the answer.
+        if let Some(client) = &state.upstream
+            && client.resolve(&job.focus, "notification_focus").is_err()
+        {
+            refused += 1;
+            continue;
+        }
         if state.seen.contains(&job.key) {
             duplicates += 1;
             continue;
@@ -463,8 +471,14 @@ async fn notifications(req: HttpRequest, payload: web::Payload, state: web::Data
             }
         }
     }
-    tracing::info!(queued, duplicates, "notification");
-    info(StatusCode::ACCEPTED, format!("{queued} event(s) queued, {duplicates} already received"))
+    tracing::info!(queued, duplicates, refused, "notification");
+    let mut text = format!("{queued} event(s) queued, {duplicates} already received");
+    if refused > 0 {
+        text.push_str(&format!(
+            "; {refused} event(s) refused: the focus points outside the configured FHIR server (CALCIUM_CDS_FHIR_BASE_URL) and was not read"
+        ));
+    }
+    info(StatusCode::ACCEPTED, text)
 }
 
 /// Work one event: find the patient, gather, assess, and write back when there is something to say.
@@ -495,7 +509,10 @@ async fn work_event(state: &AppState, job: &crate::notify::Job) -> Result<&'stat
     let focus = match &job.resource {
         Some(r) => r.clone(),
         // The reference is not logged (it names a patient's resource).
-        None => client.read(&job.focus).await.map_err(|f| format!("read of the event's focus: {}", f.how))?,
+        None => client
+            .read(&job.focus, "notification_focus")
+            .await
+            .map_err(|f| format!("read of the event's focus: {}", f.how))?,
     };
     let codes = state.engine.observation_code_tokens();
     let patient = match crate::notify::relevant_patient(&focus, &codes) {

@@ -40,6 +40,7 @@ struct Inner {
     assessments: BTreeMap<Labels, u64>,
     upstream: BTreeMap<Labels, Histogram>,
     upstream_errors: BTreeMap<Labels, u64>,
+    upstream_refused: BTreeMap<Labels, u64>,
 }
 
 /// The service's metrics.
@@ -134,6 +135,15 @@ impl Metrics {
         }
     }
 
+    /// One URL refused because it points outside the configured FHIR server.
+    /// `kind` comes from a fixed set (`notification_focus`, `next_link`,
+    /// `full_url`), never from request content.
+    pub fn upstream_refused(&self, kind: &'static str) {
+        if let Ok(mut g) = self.inner.lock() {
+            *g.upstream_refused.entry(vec![("kind", kind.to_owned())]).or_default() += 1;
+        }
+    }
+
     /// The exposition text.
     pub fn render(&self, snap: &Snapshot<'_>) -> String {
         let mut out = String::new();
@@ -193,6 +203,12 @@ impl Metrics {
             "calcium_cds_upstream_errors_total",
             "Failed upstream FHIR calls by search.",
             &g.upstream_errors,
+        );
+        render_counter(
+            &mut out,
+            "calcium_cds_upstream_refused_total",
+            "References and links refused (never fetched) because they point outside the configured FHIR server.",
+            &g.upstream_refused,
         );
         out
     }

@@ -152,6 +152,8 @@ pub fn traces_url(endpoint: &str) -> Result<String, String> {
     if !matches!(parsed.scheme(), "http" | "https") {
         return Err(format!("otlp-endpoint must be http or https, not {}", parsed.scheme()));
     }
+    // Spans name routes and calls, not patients, but they still should not cross a network in the clear.
+    crate::upstream::https_or_loopback("otlp-endpoint", endpoint)?;
     Ok(format!("{}/v1/traces", endpoint.trim_end_matches('/')))
 }
 
@@ -270,8 +272,10 @@ mod tests {
 
     #[test]
     fn the_traces_path_is_appended_to_the_endpoint() {
-        assert_eq!(traces_url("http://collector:4318").as_deref(), Ok("http://collector:4318/v1/traces"));
-        assert_eq!(traces_url("http://collector:4318/").as_deref(), Ok("http://collector:4318/v1/traces"));
+        assert_eq!(traces_url("https://collector:4318").as_deref(), Ok("https://collector:4318/v1/traces"));
+        assert_eq!(traces_url("https://collector:4318/").as_deref(), Ok("https://collector:4318/v1/traces"));
+        assert_eq!(traces_url("http://127.0.0.1:4318").as_deref(), Ok("http://127.0.0.1:4318/v1/traces"));
+        assert!(traces_url("http://collector:4318").is_err(), "plain http only to a loopback host");
         assert!(traces_url("collector:4318").is_err(), "a host without a scheme");
         assert!(traces_url("ftp://collector").is_err());
         assert!(traces_url("not a url").is_err());

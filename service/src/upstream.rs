@@ -90,6 +90,69 @@ pub struct Gathered {
     pub failed: Vec<FailedCall>,
 }
 
+/// What one search produced.
+#[derive(Debug, Default)]
+struct Searched {
+    /// Matching entries.
+    found: Vec<Value>,
+    /// What was refused (a next link or fullUrls on another server).
+    refused: Vec<FailedCall>,
+}
+
+/// Resolve a FHIR reference or URL against the configured `base`; the URL to
+/// fetch, or why it is refused. A relative reference is joined to the base;
+/// an absolute one must be under the base: same scheme, host (compared after
+/// the URL parser's normalisation: lower case, IDNA), port (explicit or the
+/// scheme's default), no user or password, and a path equal to the base path
+/// or below it after dot segments are removed. Encoded dots, slashes and
+/// backslashes in the path are refused outright (a server may decode them
+/// after this check). The query is not inspected: it cannot change where the
+/// request goes.
+pub fn resolve(base: &str, reference: &str) -> Result<String, String> {
+    let base = base.trim_end_matches('/');
+    let base_url = reqwest::Url::parse(base).map_err(|_| "cannot be checked: the configured base is not a URL")?;
+    let path_part = reference.split(['?', '#']).next().unwrap_or("");
+    let lower = path_part.to_ascii_lowercase();
+    if path_part.contains('\\')
+        || ["%2e", "%2f", "%5c", "%00"].iter().any(|x| lower.contains(x))
+        || reference.chars().any(|c| c.is_control() || c.is_whitespace())
+    {
+        return Err("carries an encoded dot, slash, backslash or a control character in its path".into());
+    }
+    let text = if reference.contains("://") || reference.starts_with("//") {
+        reference.to_owned()
+    } else {
+        format!("{base}/{}", reference.trim_start_matches('/'))
+    };
+    let url = reqwest::Url::parse(&text).map_err(|_| "is not a valid URL".to_owned())?;
+    let base_path = base_url.path().trim_end_matches('/');
+    let same = url.scheme() == base_url.scheme()
+        && url.host_str() == base_url.host_str()
+        && url.port_or_known_default() == base_url.port_or_known_default()
+        && url.username().is_empty()
+        && url.password().is_none()
+        && (url.path() == base_path || url.path().starts_with(&format!("{base_path}/")));
+    if same { Ok(url.to_string()) } else { Err("points outside the configured FHIR server".into()) }
+}
+
+/// Refuse a URL that would carry a credential or telemetry in the clear: it
+/// must be https, or http to a loopback host (`localhost`, 127.0.0.0/8, ::1).
+/// `setting` names the setting in the message.
+pub fn https_or_loopback(setting: &str, url: &str) -> Result<(), String> {
+    let parsed = reqwest::Url::parse(url).map_err(|e| format!("{setting} '{url}' is not a URL: {e}"))?;
+    let host = parsed.host_str().unwrap_or("").trim_start_matches('[').trim_end_matches(']');
+    let loopback =
+        host.eq_ignore_ascii_case("localhost") || host.parse::<std::net::IpAddr>().is_ok_and(|ip| ip.is_loopback());
+    match parsed.scheme() {
+        "https" => Ok(()),
+        "http" if loopback => Ok(()),
+        "http" => Err(format!(
+            "{setting} must be https (plain http is accepted only for a loopback host such as 127.0.0.1 or localhost): {url}"
+        )),
+        other => Err(format!("{setting} must be https, not {other}")),
+    }
+}
+
 /// The client.
 #[derive(Debug, Clone)]
 pub struct FhirClient {
@@ -274,21 +337,34 @@ impl FhirClient {
         }
     }
 
-    /// A search, following next links up to the page limit; the resources found.
-    async fn search(&self, url: String, what: &str, deadline: Instant) -> Result<Vec<Value>, FailedCall> {
-        let mut found = Vec::new();
+    /// Count a refused URL in the metrics (bounded label set: `kind` is one of
+    /// a fixed few, never the URL).
+    fn refused(&self, kind: &'static str) {
+        if let Some(m) = &self.metrics {
+            m.upstream_refused(kind);
+        }
+    }
+
+    /// The configured FHIR base (without a trailing slash).
+    pub fn base_url(&self) -> &str {
+        self.settings.base_url.trim_end_matches('/')
+    }
+
+    /// Resolve `reference` against the configured base (see [`resolve`]);
+    /// a refusal is counted in the metrics under `kind`.
+    pub fn resolve(&self, reference: &str, kind: &'static str) -> Result<String, String> {
+        resolve(self.base_url(), reference).inspect_err(|_| self.refused(kind))
+    }
+
+    /// A search, following next links up to the page limit; the resources
+    /// found, and what was refused on the way (a next link or fullUrls on
+    /// another server: reported as missing data, never fetched).
+    async fn search(&self, url: String, what: &str, deadline: Instant) -> Result<Searched, FailedCall> {
+        let mut out = Searched::default();
         let mut next = Some(url);
         let mut pages = 0;
-        let base = self.settings.base_url.trim_end_matches('/');
+        let mut foreign = 0usize;
         while let Some(url) = next.take() {
-            // Never follow (or send the token to) a link outside the configured server.
-            if !(url == base || url.starts_with(&format!("{base}/")) || url.starts_with(&format!("{base}?"))) {
-                return Err(FailedCall {
-                    what: what.to_owned(),
-                    how: "a next link points outside the configured FHIR server; it was not followed".into(),
-                    timed_out: false,
-                });
-            }
             let page = self.get(&url, what, deadline).await?;
             if page.get("resourceType").and_then(Value::as_str) != Some("Bundle") {
                 return Err(FailedCall {
@@ -299,32 +375,61 @@ impl FhirClient {
             }
             for e in page.get("entry").and_then(Value::as_array).into_iter().flatten() {
                 let is_match = e.get("search").and_then(|s| s.get("mode")).and_then(Value::as_str) != Some("outcome");
-                if is_match && e.get("resource").is_some() {
-                    found.push(e.clone());
+                if !is_match || e.get("resource").is_none() {
+                    continue;
                 }
+                // A result whose fullUrl names another server is not this server's data.
+                let full_url = e.get("fullUrl").and_then(Value::as_str).unwrap_or("");
+                if full_url.contains("://") && self.resolve(full_url, "full_url").is_err() {
+                    foreign += 1;
+                    continue;
+                }
+                out.found.push(e.clone());
             }
             pages += 1;
             if pages < self.settings.page_limit {
-                next = page
+                let link = page
                     .get("link")
                     .and_then(Value::as_array)
                     .into_iter()
                     .flatten()
                     .find(|l| l.get("relation").and_then(Value::as_str) == Some("next"))
-                    .and_then(|l| l.get("url").and_then(Value::as_str))
-                    .map(str::to_owned);
+                    .and_then(|l| l.get("url").and_then(Value::as_str));
+                if let Some(link) = link {
+                    // Never follow (or send the token to) a link outside the configured server.
+                    match self.resolve(link, "next_link") {
+                        Ok(u) => next = Some(u),
+                        Err(why) => out.refused.push(FailedCall {
+                            what: what.to_owned(),
+                            how: format!(
+                                "paging stopped after page {pages}: the next link {why}; it was not followed, \
+                                 later pages are missing"
+                            ),
+                            timed_out: false,
+                        }),
+                    }
+                }
             }
         }
-        Ok(found)
+        if foreign > 0 {
+            out.refused.push(FailedCall {
+                what: what.to_owned(),
+                how: format!("{foreign} result(s) had a fullUrl outside the configured FHIR server and were set aside"),
+                timed_out: false,
+            });
+        }
+        Ok(out)
     }
 
-    /// Read one resource by reference (relative to the base, or absolute).
-    pub async fn read(&self, reference: &str) -> Result<Value, FailedCall> {
-        let url = if reference.contains("://") {
-            reference.to_owned()
-        } else {
-            format!("{}/{}", self.settings.base_url.trim_end_matches('/'), reference.trim_start_matches('/'))
-        };
+    /// Read one resource by reference (relative to the base, or an absolute
+    /// URL under the base); a reference to any other server is refused,
+    /// counted under `kind`, and never fetched.
+    pub async fn read(&self, reference: &str, kind: &'static str) -> Result<Value, FailedCall> {
+        let url = self.resolve(reference, kind).map_err(|why| FailedCall {
+            what: "read".into(),
+            how: format!("the reference {why}; it was not fetched"),
+            timed_out: false,
+        })?;
         self.get(&url, &format!("read of {reference}"), Instant::now() + self.settings.deadline).await
     }
 
@@ -421,12 +526,15 @@ impl FhirClient {
         let mut failed = Vec::new();
         for ((what, _), result) in searches.iter().zip(results) {
             match result {
-                Ok(found) => entries.extend(found.into_iter().map(|mut e| {
-                    if let Some(o) = e.as_object_mut() {
-                        o.remove("search");
-                    }
-                    e
-                })),
+                Ok(Searched { found, refused }) => {
+                    failed.extend(refused);
+                    entries.extend(found.into_iter().map(|mut e| {
+                        if let Some(o) = e.as_object_mut() {
+                            o.remove("search");
+                        }
+                        e
+                    }));
+                }
                 // The calcium results are essential.
                 Err(f) if *what == "Observation search" => return Err(f),
                 Err(f) => failed.push(f),
@@ -438,12 +546,15 @@ impl FhirClient {
         if !ids.is_empty() {
             let url = format!("{base}/Specimen?_id={}&_count={count}", urlencode(&ids.join(",")));
             match self.search(url, "Specimen search", deadline).await {
-                Ok(found) => entries.extend(found.into_iter().map(|mut e| {
-                    if let Some(o) = e.as_object_mut() {
-                        o.remove("search");
-                    }
-                    e
-                })),
+                Ok(Searched { found, refused }) => {
+                    failed.extend(refused);
+                    entries.extend(found.into_iter().map(|mut e| {
+                        if let Some(o) = e.as_object_mut() {
+                            o.remove("search");
+                        }
+                        e
+                    }));
+                }
                 Err(f) => failed.push(f),
             }
         }
@@ -470,8 +581,12 @@ fn specimen_ids(entries: &[Value], base: &str) -> Vec<String> {
         let Some(reference) = r.get("specimen").and_then(|s| s.get("reference")).and_then(Value::as_str) else {
             continue;
         };
-        let local = reference.strip_prefix(base).and_then(|x| x.strip_prefix('/')).unwrap_or(reference);
-        let Some(id) = local.strip_prefix("Specimen/") else { continue };
+        if reference.starts_with('#') {
+            continue;
+        }
+        let Ok(url) = resolve(base, reference) else { continue };
+        // Under the base (checked above): the id follows the last `/Specimen/`.
+        let Some((_, id)) = url.rsplit_once("/Specimen/") else { continue };
         let id_ok =
             !id.is_empty() && id.len() <= 64 && id.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'-' || b == b'.');
         if id_ok && !have.contains(&id) && !ids.iter().any(|x| x == id) {
@@ -514,5 +629,73 @@ mod tests {
             json!({ "resource": { "resourceType": "Condition", "specimen": { "reference": "Specimen/s4" } } }),
         ];
         assert_eq!(specimen_ids(&entries, base), ["s1", "s2"]);
+    }
+
+    #[test]
+    fn references_resolve_only_under_the_configured_base() {
+        let base = "https://ehr.example.org:443/fhir/";
+        let ok = |r: &str| resolve(base, r).unwrap_or_else(|e| panic!("{r}: {e}"));
+        assert_eq!(ok("Observation/o-1"), "https://ehr.example.org/fhir/Observation/o-1");
+        assert_eq!(ok("/Observation/o-1"), "https://ehr.example.org/fhir/Observation/o-1");
+        assert_eq!(ok("https://ehr.example.org/fhir/Observation/o-1"), "https://ehr.example.org/fhir/Observation/o-1");
+        // Host case and an explicit default port are the same server.
+        assert_eq!(
+            ok("https://EHR.Example.ORG:443/fhir/Observation/o-1"),
+            "https://ehr.example.org/fhir/Observation/o-1"
+        );
+        // A query may carry encoded characters (paging cursors do).
+        assert_eq!(ok("https://ehr.example.org/fhir?_getpages=a%2Fb"), "https://ehr.example.org/fhir?_getpages=a%2Fb");
+        // A dot segment that stays under the base is harmless once removed.
+        assert_eq!(ok("Observation/../Patient/p-1"), "https://ehr.example.org/fhir/Patient/p-1");
+        for bad in [
+            "https://elsewhere.example.com/fhir/Observation/o-1",
+            "https://ehr.example.org.elsewhere.example.com/fhir/Observation/o-1",
+            "https://ehr@elsewhere.example.com/fhir/Observation/o-1",
+            "https://ehr.example.org@elsewhere.example.com/fhir/Observation/o-1",
+            "https://user:pw@ehr.example.org/fhir/Observation/o-1",
+            "http://ehr.example.org/fhir/Observation/o-1",
+            "https://ehr.example.org:8443/fhir/Observation/o-1",
+            "https://ehr.example.org/fhirx/Observation/o-1",
+            "https://ehr.example.org/other/Observation/o-1",
+            "https://ehr.example.org/fhir/../admin/secret",
+            "../admin/secret",
+            "Observation/../../admin",
+            "https://ehr.example.org/fhir/%2e%2e/admin",
+            "https://ehr.example.org/fhir/..%2Fadmin",
+            "Observation%2F..%2F..%2Fadmin",
+            "https://ehr.example.org/fhir/..\\admin",
+            "//elsewhere.example.com/fhir/Observation/o-1",
+            "file:///etc/passwd",
+            "Observation/o 1",
+        ] {
+            assert!(resolve(base, bad).is_err(), "{bad} was accepted as {:?}", resolve(base, bad));
+        }
+    }
+
+    #[test]
+    fn a_base_at_the_root_accepts_every_path_on_its_origin_only() {
+        let base = "http://127.0.0.1:8080";
+        assert_eq!(resolve(base, "Patient/p-1").as_deref(), Ok("http://127.0.0.1:8080/Patient/p-1"));
+        assert!(resolve(base, "http://127.0.0.1:8081/Patient/p-1").is_err());
+        assert!(resolve(base, "http://localhost:8080/Patient/p-1").is_err(), "another host name is another server");
+    }
+
+    #[test]
+    fn credentials_and_telemetry_go_over_https_or_to_a_loopback_host() {
+        for ok in [
+            "https://auth.example.org/token",
+            "http://127.0.0.1:9000/token",
+            "http://127.1.2.3/token",
+            "http://localhost:4318",
+            "http://[::1]:4318",
+        ] {
+            assert_eq!(https_or_loopback("X", ok), Ok(()), "{ok}");
+        }
+        for bad in
+            ["http://auth.example.org/token", "http://10.0.0.5/token", "http://localhost.example.org/t", "ftp://x/y"]
+        {
+            let e = https_or_loopback("CALCIUM_CDS_SMART_TOKEN_URL", bad).expect_err(bad);
+            assert!(e.starts_with("CALCIUM_CDS_SMART_TOKEN_URL must be https"), "{e}");
+        }
     }
 }

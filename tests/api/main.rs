@@ -19,6 +19,8 @@ mod clinical;
 mod treatment;
 // POST /fhir/Patient/{id}/$assess against a wiremock EHR: what we send, paging, retries, timeouts, failures.
 mod upstream;
+// Every upstream URL stays on the configured FHIR server; https-or-loopback for credential and telemetry URLs.
+mod upstream_origin;
 // Result notifications: queue, duplicates, overflow, idempotent write-back (wiremock as the EHR).
 mod notify;
 

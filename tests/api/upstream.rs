@@ -187,7 +187,7 @@ pub(crate) async fn mount_empty_other_searches(server: &MockServer) {
 }
 
 /// The Patient read and empty other searches; the test mounts the Observation search.
-async fn mock_ehr() -> MockServer {
+pub(crate) async fn mock_ehr() -> MockServer {
     let server = MockServer::start().await;
     mount_patient(&server).await;
     mount_empty_other_searches(&server).await;
