@@ -425,12 +425,14 @@ pub fn cited_inputs(value: &Value) -> Vec<String> {
     fn walk(v: &Value, out: &mut Vec<String>) {
         match v {
             Value::Object(map) => {
-                if let Some(d) = map.get("display").and_then(Value::as_str).filter(|_| !map.contains_key("reference")) {
-                    if let Some((_, rest)) = d.split_once("(fullUrl ") {
-                        if let Some((url, _)) = rest.split_once("; no id)") {
-                            out.push(url.to_owned());
-                        }
-                    }
+                if let Some((url, _)) = map
+                    .get("display")
+                    .and_then(Value::as_str)
+                    .filter(|_| !map.contains_key("reference"))
+                    .and_then(|d| d.split_once("(fullUrl "))
+                    .and_then(|(_, rest)| rest.split_once("; no id)"))
+                {
+                    out.push(url.to_owned());
                 }
                 map.values().for_each(|x| walk(x, out));
             }

@@ -193,10 +193,10 @@ fn openapi_routes() -> Vec<(String, String)> {
         }
         if let Some(p) = line.strip_prefix("  /").and_then(|l| l.strip_suffix(':')) {
             path = Some(format!("/{p}"));
-        } else if let (Some(p), Some(m)) = (&path, line.strip_prefix("    ").and_then(|l| l.strip_suffix(':'))) {
-            if ["get", "post", "put", "delete", "patch"].contains(&m) {
-                out.push((m.to_uppercase(), p.clone()));
-            }
+        } else if let (Some(p), Some(m)) = (&path, line.strip_prefix("    ").and_then(|l| l.strip_suffix(':')))
+            && ["get", "post", "put", "delete", "patch"].contains(&m)
+        {
+            out.push((m.to_uppercase(), p.clone()));
         }
     }
     out
