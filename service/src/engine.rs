@@ -101,6 +101,7 @@ impl Engine {
             now: ingested.facts.now,
             // Over the parsed document, so that whitespace does not change ids.
             request_digest: write::request_digest(doc),
+            identifiers: &ingested.identifiers,
         };
         let workup = assessment.finding.as_ref().and_then(|f| workup::run(&ingested.facts, &self.rules.rules, f));
         if let Some(w) = &workup {

@@ -28,6 +28,76 @@ pub const FHIR_JSON: &str = "application/fhir+json; charset=utf-8";
 const CAPABILITY: &str = include_str!("../../fhir-profiles/CapabilityStatement-calcium-cds.json");
 const OPERATION: &str = include_str!("../../fhir-profiles/OperationDefinition-assess.json");
 
+/// Every route of the service but the optional workbench and benchmark ones:
+/// (method, path template, what it is for). The router registers exactly
+/// these; the 405 answers, the CapabilityStatement's `rest.documentation`, its
+/// operation entries and the OperationDefinition's levels are made from this
+/// list, and tests compare it with the router and the OpenAPI description.
+pub const ROUTES: &[(&str, &str, &str)] = &[
+    (
+        "POST",
+        "/fhir/$assess",
+        "system-level $assess: the patient's data in the body (a Bundle, or Parameters with a `bundle` part)",
+    ),
+    (
+        "POST",
+        "/fhir/Patient/{id}/$assess",
+        "instance-level $assess: the service gathers the patient's data from the configured FHIR server",
+    ),
+    (
+        "POST",
+        "/notifications",
+        "result notifications (a history Bundle of the FHIR Subscriptions R5 Backport IG for R4, id-only or full-resource payloads); the service assesses the patient and, when configured, writes the result back; not a FHIR interaction of this server",
+    ),
+    ("GET", "/fhir/metadata", "this CapabilityStatement"),
+    ("GET", "/fhir/OperationDefinition/assess", "the OperationDefinition of $assess"),
+    ("GET", "/livez", "liveness probe"),
+    ("GET", "/readyz", "readiness probe"),
+    ("GET", "/metrics", "Prometheus metrics"),
+];
+
+/// The served CapabilityStatement and OperationDefinition: the static files,
+/// with the parts that must agree with the routes and the writers derived
+/// from [`ROUTES`] and [`crate::fhir::write::RESULT_RESOURCE_TYPES`].
+pub fn describe(mut capability: Value, mut operation: Value) -> (Value, Value) {
+    let has = |path: &str| ROUTES.iter().any(|(m, p, _)| *m == "POST" && *p == path);
+    let types = crate::fhir::write::RESULT_RESOURCE_TYPES;
+    let definition = operation["url"].clone();
+    operation["system"] = Value::Bool(has("/fhir/$assess"));
+    operation["type"] = Value::Bool(has("/fhir/Patient/$assess"));
+    operation["instance"] = Value::Bool(has("/fhir/Patient/{id}/$assess"));
+    operation["resource"] = serde_json::json!(["Patient"]);
+    if let Some(params) = operation["parameter"].as_array_mut() {
+        for p in params.iter_mut().filter(|p| p["name"] == "return") {
+            p["documentation"] = Value::String(format!(
+                "A collection Bundle whose entries are of these resource types: {}. A GuidanceResponse always comes first, and a Device (the service), an OperationOutcome (every input not used, and why) and a Provenance are always present; the others occur when the assessment calls for them (an albumin-adjusted Observation, DetectedIssues, the work-up's ClinicalImpression, ServiceRequests and output Parameters, draft MedicationRequests, a RequestGroup ordering the proposals, and the explain trace as Parameters). References to inputs are `Type/id` where the input had an id, else by identifier or display; references between result entries use their fullUrl. Advisory only.",
+                types.join(", ")
+            ));
+        }
+    }
+    let routes: Vec<String> = ROUTES.iter().map(|(m, p, what)| format!("- `{m} {p}`: {what}")).collect();
+    let rest = &mut capability["rest"][0];
+    rest["documentation"] = Value::String(format!(
+        "The $assess operation is supported at system level (POST [base]/$assess) and at Patient instance level (POST [base]/Patient/[id]/$assess). No resource type supports read, search or write interactions; the resource entries below name Patient (the instance-level operation) and every resource type the result Bundle can hold (only inside that Bundle). The routes of this service (the FHIR base is /fhir):\n\n{}",
+        routes.join("\n")
+    ));
+    rest["operation"] = serde_json::json!([{
+        "name": "assess",
+        "definition": definition,
+        "documentation": "Advisory hypocalcemia assessment for one child (system level)."
+    }]);
+    let mut resources = vec![serde_json::json!({
+        "type": "Patient",
+        "documentation": "Not read, searched or stored here: $assess on a Patient instance gathers that patient's data from the configured FHIR server.",
+        "operation": [{ "name": "assess", "definition": definition, "documentation": "Advisory hypocalcemia assessment for this patient (instance level)." }],
+    })];
+    resources.extend(types.iter().map(|t| {
+        serde_json::json!({ "type": t, "documentation": "Returned only inside the $assess result Bundle; not read, searched or stored by this service." })
+    }));
+    rest["resource"] = Value::Array(resources);
+    (capability, operation)
+}
+
 /// Shared state.
 pub struct AppState {
     engine: Engine,
@@ -66,6 +136,7 @@ impl Application {
             serde_json::from_str(CAPABILITY).map_err(|e| format!("CapabilityStatement: {e}"))?;
         capability["software"]["version"] = Value::String(VERSION.to_owned());
         let operation: Value = serde_json::from_str(OPERATION).map_err(|e| format!("OperationDefinition: {e}"))?;
+        let (capability, operation) = describe(capability, operation);
         let metrics = Arc::new(crate::metrics::Metrics::default());
         let spans = match settings.telemetry.export_settings()? {
             Some(export) => {
@@ -615,10 +686,10 @@ fn not_found_response() -> HttpResponse {
 async fn not_found(req: HttpRequest) -> HttpResponse {
     let path = req.path();
     let patient_assess = path.starts_with("/fhir/Patient/") && path.ends_with("/$assess");
+    let declared = ROUTES.iter().find(|(_, p, _)| *p == path).map(|(m, _, _)| *m);
     let allowed = match path {
-        "/fhir/$assess" | "/notifications" => Some("POST"),
+        _ if declared.is_some() => declared,
         _ if patient_assess => Some("POST"),
-        "/fhir/metadata" | "/fhir/OperationDefinition/assess" | "/livez" | "/readyz" | "/metrics" => Some("GET"),
         "/workbench"
         | "/workbench/"
         | "/workbench/app.js"

@@ -10,8 +10,8 @@ use std::process::{Command, Output, Stdio};
 use serde_json::{Value, json};
 
 use crate::helpers::{
-    EXAMPLE_NOW, assert_r4_valid, example, examples_dir, guidance_notes, guidance_status, issue_at, issue_expressions,
-    outcome_issues, references_in, resources, spawn_app,
+    EXAMPLE_NOW, assert_r4_valid, cited_inputs, example, examples_dir, guidance_notes, guidance_status, issue_at,
+    issue_expressions, outcome_issues, resources, spawn_app,
 };
 
 const BIN: &str = env!("CARGO_BIN_EXE_calcium-cds");
@@ -257,7 +257,7 @@ fn check(e: &Expected, request: &Value, result: &Value, how: &str) {
         Some(severity) => {
             assert_eq!(issues.len(), 1, "{file} ({how})");
             assert_eq!(issues[0]["severity"], severity, "{file} ({how}): severity");
-            let cited = references_in(&issues[0]["evidence"]);
+            let cited = cited_inputs(&issues[0]["evidence"]);
             for r in e.evidence {
                 assert!(cited.iter().any(|c| c == r), "{file} ({how}): evidence lacks {r}: {cited:?}");
             }
@@ -291,8 +291,8 @@ fn check(e: &Expected, request: &Value, result: &Value, how: &str) {
         .into_iter()
         .chain(resources(result, "Provenance"))
         .flat_map(|r| {
-            let mut refs = references_in(&r["evidence"]);
-            refs.extend(references_in(&r["entity"]));
+            let mut refs = cited_inputs(&r["evidence"]);
+            refs.extend(cited_inputs(&r["entity"]));
             refs
         })
         .collect();

@@ -416,6 +416,34 @@ pub fn references_in(value: &Value) -> Vec<String> {
     out
 }
 
+/// The inputs a value cites: every literal `reference`, and the request
+/// `fullUrl` named in the display of a reference to an input without an id
+/// (`... (fullUrl urn:uuid:...; no id)`), which has no literal reference
+/// because a `urn:uuid` would point nowhere once the result is stored.
+pub fn cited_inputs(value: &Value) -> Vec<String> {
+    let mut out = references_in(value);
+    fn walk(v: &Value, out: &mut Vec<String>) {
+        match v {
+            Value::Object(map) => {
+                if let Some((url, _)) = map
+                    .get("display")
+                    .and_then(Value::as_str)
+                    .filter(|_| !map.contains_key("reference"))
+                    .and_then(|d| d.split_once("(fullUrl "))
+                    .and_then(|(_, rest)| rest.split_once("; no id)"))
+                {
+                    out.push(url.to_owned());
+                }
+                map.values().for_each(|x| walk(x, out));
+            }
+            Value::Array(items) => items.iter().for_each(|x| walk(x, out)),
+            _ => {}
+        }
+    }
+    walk(value, &mut out);
+    out
+}
+
 // ---------------------------------------------------------------------------
 // Clock helpers (no date library: civil-from-days, proleptic Gregorian)
 

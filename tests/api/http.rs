@@ -175,3 +175,118 @@ async fn json_and_fhir_json_with_charset_are_both_accepted() {
         assert_r4_valid(&bundle);
     }
 }
+
+/// The paths and methods of fhir-profiles/openapi.yaml (the `paths:` block: a
+/// path at two spaces, its methods at four).
+fn openapi_routes() -> Vec<(String, String)> {
+    let text = std::fs::read_to_string(crate::helpers::repo_path("fhir-profiles/openapi.yaml")).unwrap();
+    let mut out = Vec::new();
+    let mut path = None;
+    let mut in_paths = false;
+    for line in text.lines() {
+        if !line.starts_with(' ') {
+            in_paths = line.trim_end() == "paths:";
+            continue;
+        }
+        if !in_paths {
+            continue;
+        }
+        if let Some(p) = line.strip_prefix("  /").and_then(|l| l.strip_suffix(':')) {
+            path = Some(format!("/{p}"));
+        } else if let (Some(p), Some(m)) = (&path, line.strip_prefix("    ").and_then(|l| l.strip_suffix(':')))
+            && ["get", "post", "put", "delete", "patch"].contains(&m)
+        {
+            out.push((m.to_uppercase(), p.clone()));
+        }
+    }
+    out
+}
+
+/// Issue 14, section 6: the declared routes are the router's and the OpenAPI
+/// description's, and the CapabilityStatement and OperationDefinition declare
+/// the instance level, /notifications and every result resource type.
+#[tokio::test]
+async fn the_service_describes_every_route_and_every_result_type() {
+    use calcium_cds::http::ROUTES;
+    let declared: std::collections::BTreeSet<(String, String)> =
+        ROUTES.iter().map(|(m, p, _)| ((*m).to_owned(), (*p).to_owned())).collect();
+    let openapi: std::collections::BTreeSet<(String, String)> = openapi_routes().into_iter().collect();
+    assert_eq!(declared, openapi, "ROUTES (left) and fhir-profiles/openapi.yaml (right)");
+
+    let app = spawn_app().await;
+    let client = reqwest::Client::new();
+    for (method, path, _) in ROUTES {
+        let url = format!("{}{}", app.address, path.replace("{id}", "p-1"));
+        let (right, wrong) = if *method == "GET" {
+            (client.get(&url), client.post(&url).header("Content-Type", "application/fhir+json").body("{}"))
+        } else {
+            (client.post(&url).header("Content-Type", "application/fhir+json").body("{}"), client.get(&url))
+        };
+        // The router has the route: neither unknown nor the wrong method.
+        let status = right.send().await.unwrap().status().as_u16();
+        assert!(status != 404 && status != 405, "{method} {path}: {status}");
+        let response = wrong.send().await.unwrap();
+        assert_eq!(response.status().as_u16(), 405, "{path} with the other method");
+        assert_eq!(response.headers()["allow"], *method, "{path}");
+    }
+
+    let types: std::collections::BTreeSet<String> =
+        calcium_cds::fhir::write::RESULT_RESOURCE_TYPES.iter().map(|t| (*t).to_owned()).collect();
+    let seen = crate::references::types_seen(&crate::references::all_answers());
+    assert_eq!(types, seen, "declared result types (left) and the types in every example's and case's answer");
+
+    let od = fhir_body(app.get("/fhir/OperationDefinition/assess").await, 200).await;
+    assert_eq!(od["system"], true);
+    assert_eq!(od["instance"], true, "POST /fhir/Patient/{{id}}/$assess");
+    assert_eq!(od["type"], false, "no type-level route");
+    assert_eq!(od["resource"], serde_json::json!(["Patient"]));
+    let ret = od["parameter"].as_array().unwrap().iter().find(|p| p["name"] == "return").unwrap();
+    let doc = ret["documentation"].as_str().unwrap();
+    for t in &seen {
+        assert!(doc.contains(t.as_str()), "return documentation lacks {t}: {doc}");
+    }
+    assert_r4_valid(&od);
+
+    let cs = fhir_body(app.get("/fhir/metadata").await, 200).await;
+    let rest = &cs["rest"][0];
+    let resources = rest["resource"].as_array().unwrap();
+    let patient = resources.iter().find(|r| r["type"] == "Patient").expect("a Patient resource entry");
+    assert_eq!(patient["operation"][0]["name"], "assess");
+    assert!(patient["operation"][0]["definition"].as_str().unwrap().ends_with("/OperationDefinition/assess"));
+    let result_types: std::collections::BTreeSet<String> = resources
+        .iter()
+        .filter(|r| r.get("operation").is_none())
+        .map(|r| r["type"].as_str().unwrap().to_owned())
+        .collect();
+    assert_eq!(result_types, seen, "CapabilityStatement result resource entries (left), types in the answers (right)");
+    let documentation = rest["documentation"].as_str().unwrap();
+    let listed: std::collections::BTreeSet<(String, String)> = documentation
+        .lines()
+        .filter_map(|l| l.strip_prefix("- `"))
+        .filter_map(|l| l.split_once('`').map(|(route, _)| route))
+        .filter_map(|r| r.split_once(' ').map(|(m, p)| (m.to_owned(), p.to_owned())))
+        .collect();
+    assert_eq!(listed, declared, "routes in rest.documentation (left) and ROUTES (right)");
+    assert_r4_valid_except_fhir_version(&cs);
+}
+
+/// The files in fhir-profiles are what the service serves (the derived parts
+/// included), so that the published descriptions cannot drift from the routes.
+#[tokio::test]
+async fn the_published_files_are_what_the_service_serves() {
+    let app = spawn_app().await;
+    for (path, file) in [
+        ("/fhir/metadata", "fhir-profiles/CapabilityStatement-calcium-cds.json"),
+        ("/fhir/OperationDefinition/assess", "fhir-profiles/OperationDefinition-assess.json"),
+    ] {
+        let mut served = fhir_body(app.get(path).await, 200).await;
+        let text = std::fs::read_to_string(crate::helpers::repo_path(file)).unwrap();
+        let mut published: Value = serde_json::from_str(&text).unwrap();
+        for v in [&mut served, &mut published] {
+            if let Some(s) = v.get_mut("software") {
+                s["version"] = Value::Null;
+            }
+        }
+        assert_eq!(served, published, "{file}");
+    }
+}

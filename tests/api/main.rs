@@ -65,3 +65,6 @@ mod reference_preterm;
 
 // Sources a clinician can follow: no output text cites memory, a brief or an internal file; every case answer is valid R4 (issue 13).
 mod output_text;
+
+// Results an EHR can store: every reference resolves in the answer or as Type/id; declared result types match the answers (issue 14).
+mod references;

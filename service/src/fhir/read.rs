@@ -60,6 +60,51 @@ pub struct Ingested {
     pub bundle_id: Option<String>,
     /// The raw evaluation time text, when it came from the request.
     pub now_from_request: Option<String>,
+    /// Business identifiers of the entries that have a `fullUrl` but no id,
+    /// by that `fullUrl`: an output refers to such an entry by identifier,
+    /// since its `urn:uuid` would point nowhere once the result is stored.
+    pub identifiers: HashMap<String, InputIdentifier>,
+}
+
+/// An input resource's business identifier (its first `identifier` with a value).
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct InputIdentifier {
+    /// Identifier.system, when given.
+    pub system: Option<String>,
+    /// Identifier.value.
+    pub value: String,
+}
+
+/// The identifiers of the entries that have a `fullUrl` but no `id` (see
+/// [`Ingested::identifiers`]): the first identifier with a value, preferring
+/// one with a system.
+fn input_identifiers(bundle: &Value) -> HashMap<String, InputIdentifier> {
+    let mut out = HashMap::new();
+    for entry in bundle.get("entry").and_then(Value::as_array).into_iter().flatten() {
+        let (Some(url), Some(resource)) = (str_at(entry, "fullUrl"), entry.get("resource")) else {
+            continue;
+        };
+        if resource.get("id").is_some() {
+            continue;
+        }
+        let ids = resource.get("identifier").and_then(Value::as_array).map(Vec::as_slice).unwrap_or_default();
+        let with_value = |need_system: bool| {
+            ids.iter().find(|i| {
+                str_at(i, "value").is_some_and(|v| !v.trim().is_empty())
+                    && (!need_system || str_at(i, "system").is_some())
+            })
+        };
+        if let Some(i) = with_value(true).or_else(|| with_value(false)) {
+            out.insert(
+                url.to_owned(),
+                InputIdentifier {
+                    system: str_at(i, "system").map(str::to_owned),
+                    value: str_at(i, "value").unwrap_or_default().to_owned(),
+                },
+            );
+        }
+    }
+    out
 }
 
 struct Entry<'a> {
@@ -239,6 +284,7 @@ pub fn read_value(
         patient_reference,
         bundle_id: str_at(bundle, "id").map(str::to_owned),
         now_from_request,
+        identifiers: input_identifiers(bundle),
     })
 }
 

@@ -12,7 +12,7 @@ use sha2::{Digest, Sha256};
 
 use super::datetime::format_instant;
 use super::outcome::{Issue, IssueCode, IssueSeverityLevel, operation_outcome};
-use super::read::{Ingested, UCUM};
+use super::read::{Ingested, InputIdentifier, UCUM};
 use crate::clinical::facts::{Analyte, Source};
 use crate::clinical::format::{num, value_with_mg_dl};
 use crate::clinical::status::{Assessment, CalciumFinding, Classification, DerivedAdjusted, GuidanceStatus};
@@ -27,6 +27,25 @@ const OBS_CATEGORY: &str = "http://terminology.hl7.org/CodeSystem/observation-ca
 /// Provenance participant types (R4).
 const PARTICIPANT: &str = "http://terminology.hl7.org/CodeSystem/provenance-participant-type";
 
+/// Every resource type a result Bundle can hold, in the order they appear.
+/// The one list the result Bundle is checked against (in debug builds), the
+/// OperationDefinition's `return` documentation and the
+/// CapabilityStatement's resource entries are made from; a test compares it
+/// with the types in the answers of every example and case.
+pub const RESULT_RESOURCE_TYPES: &[&str] = &[
+    "GuidanceResponse",
+    "Observation",
+    "DetectedIssue",
+    "ClinicalImpression",
+    "ServiceRequest",
+    "MedicationRequest",
+    "RequestGroup",
+    "Parameters",
+    "OperationOutcome",
+    "Device",
+    "Provenance",
+];
+
 /// What the writer needs besides the assessment.
 #[derive(Debug, Clone)]
 pub struct OutputContext<'a> {
@@ -40,6 +59,8 @@ pub struct OutputContext<'a> {
     pub now: i64,
     /// Digest of the request (canonical JSON), for ids.
     pub request_digest: [u8; 32],
+    /// Identifiers of the input entries that have a `fullUrl` but no id.
+    pub identifiers: &'a std::collections::HashMap<String, InputIdentifier>,
 }
 
 impl OutputContext<'_> {
@@ -73,13 +94,54 @@ pub fn request_digest(doc: &Value) -> [u8; 32] {
     Sha256::digest(bytes).into()
 }
 
-/// A Reference to an input resource.
-pub fn reference(source: &Source) -> Value {
-    match &source.reference {
-        Some(r) => json!({ "reference": r, "type": source.resource_type }),
-        None => {
-            json!({ "type": source.resource_type, "display": format!("{} (no id in the request)", source.expression) })
+/// The `Type/id` an input reference can be stored as: a relative `Type/id`
+/// as it is; the `Type/id` tail of a RESTful absolute URL (FHIR R4 3.1.0.1.2:
+/// `[base]/[type]/[id]`, optionally `/_history/[vid]`) of the same type;
+/// otherwise (a `urn:uuid` or `urn:oid` fullUrl, a URL of another shape) none,
+/// since it would point nowhere once the result is stored.
+pub fn storable(reference: &str, resource_type: &str) -> Option<String> {
+    if reference.starts_with("urn:") || reference.starts_with('#') {
+        return None;
+    }
+    let path = match reference.split_once("://") {
+        Some((_, rest)) => rest,
+        None => reference,
+    };
+    let path = match path.split_once("/_history/") {
+        Some((head, _)) => head,
+        None => path,
+    };
+    let mut parts = path.rsplit('/');
+    let id = parts.next()?;
+    let ty = parts.next()?;
+    let relative_ok = reference.contains("://") || parts.next().is_none();
+    let id_ok = (1..=64).contains(&id.len()) && id.bytes().all(|b| b.is_ascii_alphanumeric() || b == b'-' || b == b'.');
+    (relative_ok && id_ok && ty == resource_type).then(|| format!("{ty}/{id}"))
+}
+
+impl OutputContext<'_> {
+    /// A Reference to an input resource that still resolves once the result
+    /// is stored: `Type/id` where the input has one; else the input's business
+    /// identifier with a display; else a display only. The display names the
+    /// request location and its `fullUrl`, so the caller can match it up.
+    pub fn reference(&self, source: &Source) -> Value {
+        let ty = source.resource_type.as_str();
+        if let Some(r) = source.reference.as_deref().and_then(|r| storable(r, ty)) {
+            return json!({ "reference": r, "type": ty });
         }
+        let display = match source.reference.as_deref() {
+            Some(url) => format!("{ty} at {} in the request (fullUrl {url}; no id)", source.expression),
+            None => format!("{ty} at {} in the request (no id)", source.expression),
+        };
+        let mut out = json!({ "type": ty, "display": display });
+        if let Some(i) = source.reference.as_deref().and_then(|url| self.identifiers.get(url)) {
+            let mut identifier = json!({ "value": i.value });
+            if let Some(system) = &i.system {
+                identifier["system"] = json!(system);
+            }
+            out["identifier"] = identifier;
+        }
+        out
     }
 }
 
@@ -122,11 +184,7 @@ pub fn result_bundle(
     let rules = &ctx.rules.rules;
     let id = |k: &str| ctx.uuid(k);
     let urn = |k: &str| format!("urn:uuid:{}", ctx.uuid(k));
-    let subject = ingested
-        .patient_reference
-        .as_ref()
-        .map(|r| json!({ "reference": r, "type": "Patient" }))
-        .unwrap_or_else(|| json!({ "type": "Patient", "display": "the Patient in the request (no id)" }));
+    let subject = ctx.reference(&ingested.facts.patient.source);
     let device = json!({ "reference": urn("device"), "type": "Device" });
     let mut entries = Vec::new();
     let mut targets = Vec::new();
@@ -141,7 +199,7 @@ pub fn result_bundle(
     // DetectedIssue for hypocalcemia.
     let low = a.finding.as_ref().filter(|f| f.is_low());
     if let Some(f) = low {
-        let mut evidence_refs: Vec<Value> = f.evidence.iter().map(reference).collect();
+        let mut evidence_refs: Vec<Value> = f.evidence.iter().map(|s| ctx.reference(s)).collect();
         if a.derived.is_some() {
             evidence_refs.insert(0, json!({ "reference": urn("adjusted-calcium"), "type": "Observation" }));
         }
@@ -180,7 +238,7 @@ pub fn result_bundle(
         targets.append(&mut wo.targets);
     }
     // Treatment proposals and safety issues.
-    let calcium_ref = a.finding.as_ref().and_then(|f| f.evidence.first()).map(reference);
+    let calcium_ref = a.finding.as_ref().and_then(|f| f.evidence.first()).map(|s| ctx.reference(s));
     let mut to = treatment
         .map(|t| super::write_treatment::treatment_output(ctx, &subject, &device, &now, calcium_ref.as_ref(), t));
     if let Some(to) = &mut to {
@@ -322,7 +380,8 @@ pub fn result_bundle(
         used.push(&w.source);
     }
     used.push(&ingested.facts.patient.source);
-    let entities: Vec<Value> = used.into_iter().map(|s| json!({ "role": "source", "what": reference(s) })).collect();
+    let entities: Vec<Value> =
+        used.into_iter().map(|s| json!({ "role": "source", "what": ctx.reference(s) })).collect();
     entries.push(json!({
         "fullUrl": urn("provenance"),
         "resource": {
@@ -346,6 +405,15 @@ pub fn result_bundle(
         "type": "collection",
         "timestamp": now,
     });
+    // The declared list is the one the OperationDefinition and CapabilityStatement
+    // publish: a type missing from it is a programming error (and the answers
+    // of every case are compared with it in tests/api/references.rs).
+    debug_assert!(
+        entries
+            .iter()
+            .all(|e| e["resource"]["resourceType"].as_str().is_some_and(|t| RESULT_RESOURCE_TYPES.contains(&t))),
+        "a result entry of a type missing from RESULT_RESOURCE_TYPES"
+    );
     // Moved in, not copied: `json!` would serialise every entry into a new Value.
     bundle["entry"] = Value::Array(entries);
     bundle
@@ -470,7 +538,7 @@ fn derived_observation(
         "interpretation": [{ "coding": [{ "system": INTERPRETATION, "code": interp_code, "display": interp_display }] }],
         "method": { "text": d.formula },
         "device": device,
-        "derivedFrom": [reference(&d.calcium), reference(&d.albumin)],
+        "derivedFrom": [ctx.reference(&d.calcium), ctx.reference(&d.albumin)],
         "note": [
             { "text": format!("Arithmetic: {}", d.arithmetic) },
             { "text": ctx.rules.rules.albumin_adjustment.caution },
@@ -508,4 +576,74 @@ fn data_requirements(ctx: &OutputContext<'_>, a: &Assessment) -> Vec<Value> {
         out.push(req);
     }
     out
+}
+
+#[cfg(test)]
+mod tests {
+    #![allow(clippy::unwrap_used, reason = "tests fail loudly by design")]
+    use std::collections::HashMap;
+
+    use super::*;
+
+    #[test]
+    fn storable_keeps_type_and_id_and_drops_what_would_dangle() {
+        // Relative Type/id as it is.
+        assert_eq!(storable("Observation/ica-1", "Observation").as_deref(), Some("Observation/ica-1"));
+        // RESTful absolute URL (R4 [base]/[type]/[id]), with or without a version: its Type/id tail.
+        assert_eq!(
+            storable("https://ehr.example.org/fhir/Observation/ica-1", "Observation").as_deref(),
+            Some("Observation/ica-1")
+        );
+        assert_eq!(
+            storable("https://ehr.example.org/fhir/Patient/p-7/_history/3", "Patient").as_deref(),
+            Some("Patient/p-7")
+        );
+        // urn:uuid and urn:oid fullUrls, contained references, another type, a bad id, a deeper relative path.
+        assert_eq!(storable("urn:uuid:3f6c1d2a-9b8e-4d71-a5c0-7e2b4f9d1a60", "Patient"), None);
+        assert_eq!(storable("urn:oid:1.2.3", "Patient"), None);
+        assert_eq!(storable("#spec", "Specimen"), None);
+        assert_eq!(storable("https://ehr.example.org/fhir/Patient/p-7", "Observation"), None);
+        assert_eq!(storable("Observation/a b", "Observation"), None);
+        assert_eq!(storable("fhir/Observation/x", "Observation"), None);
+    }
+
+    #[test]
+    fn an_input_without_id_is_referenced_by_identifier_or_display_never_by_urn() {
+        let rules = crate::rules::load::load(None).unwrap();
+        let mut identifiers = HashMap::new();
+        identifiers.insert(
+            "urn:uuid:1".to_owned(),
+            InputIdentifier { system: Some("urn:oid:2.16.840.1.113883.19.5".into()), value: "MRN-1".into() },
+        );
+        let ctx = OutputContext {
+            rules: &rules,
+            software_version: "0",
+            canonical_base: "https://x.example",
+            now: 0,
+            request_digest: [0; 32],
+            identifiers: &identifiers,
+        };
+        let src = |reference: Option<&str>| Source {
+            resource_type: "Patient".into(),
+            reference: reference.map(str::to_owned),
+            expression: "Bundle.entry[0].resource".into(),
+        };
+        assert_eq!(ctx.reference(&src(Some("Patient/p-1"))), json!({ "reference": "Patient/p-1", "type": "Patient" }));
+        assert_eq!(
+            ctx.reference(&src(Some("urn:uuid:1"))),
+            json!({
+                "type": "Patient",
+                "identifier": { "system": "urn:oid:2.16.840.1.113883.19.5", "value": "MRN-1" },
+                "display": "Patient at Bundle.entry[0].resource in the request (fullUrl urn:uuid:1; no id)",
+            })
+        );
+        assert_eq!(
+            ctx.reference(&src(Some("urn:uuid:2"))),
+            json!({ "type": "Patient", "display": "Patient at Bundle.entry[0].resource in the request (fullUrl urn:uuid:2; no id)" })
+        );
+        assert_eq!(
+            ctx.reference(&src(None)),
+            json!({ "type": "Patient", "display": "Patient at Bundle.entry[0].resource in the request (no id)" })
+        );
+    }
 }

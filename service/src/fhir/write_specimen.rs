@@ -7,7 +7,7 @@
 
 use serde_json::{Value, json};
 
-use super::write::{OutputContext, entry, reference};
+use super::write::{OutputContext, entry};
 use crate::clinical::facts::{SpecimenAction, SpecimenFinding};
 use crate::clinical::status::Assessment;
 use crate::rules::model::IssueSeverity;
@@ -74,7 +74,7 @@ pub fn specimen_output(
                 f.read_from.label()
             ));
             for r in std::iter::once(&f.result).chain(f.specimen.as_ref()) {
-                let v = reference(r);
+                let v = ctx.reference(r);
                 if !implicated.contains(&v) {
                     implicated.push(v);
                 }

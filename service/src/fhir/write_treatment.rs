@@ -5,7 +5,7 @@
 use serde_json::{Value, json};
 
 use super::read::UCUM;
-use super::write::{OutputContext, entry, reference};
+use super::write::{OutputContext, entry};
 use crate::clinical::treatment::{MedProposal, Route, TreatmentPlan};
 use crate::rules::treatment_model::SourcedCoding;
 
@@ -173,7 +173,7 @@ pub fn treatment_output(
         if let Some((c, display)) = issue.act_code {
             code["coding"] = json!([{ "system": ACT_CODE, "code": c, "display": display }]);
         }
-        let mut implicated: Vec<Value> = issue.implicated.iter().map(reference).collect();
+        let mut implicated: Vec<Value> = issue.implicated.iter().map(|s| ctx.reference(s)).collect();
         match issue.key {
             "weight" | "overshoot" => {}
             "symptoms-unknown" => implicated.extend(oral_proposals.iter().cloned()),

@@ -4,7 +4,7 @@
 
 use serde_json::{Value, json};
 
-use super::write::{OutputContext, entry, reference};
+use super::write::{OutputContext, entry};
 use crate::clinical::causes::{CauseResult, analyte_label};
 use crate::clinical::facts::Source;
 use crate::clinical::status::CalciumFinding;
@@ -132,7 +132,7 @@ pub fn workup_output(
         "date": now,
         "investigation": [{
             "code": { "text": "Laboratory results read by the work-up" },
-            "item": seen.iter().map(|s| reference(s)).collect::<Vec<_>>(),
+            "item": seen.iter().map(|s| ctx.reference(s)).collect::<Vec<_>>(),
         }],
         "summary": summary,
         "finding": findings,
@@ -146,7 +146,7 @@ pub fn workup_output(
     out.notes.push(summary);
 
     // Next tests.
-    let calcium_ref = finding.evidence.first().map(reference);
+    let calcium_ref = finding.evidence.first().map(|s| ctx.reference(s));
     let mut actions = Vec::new();
     for p in &w.plan.proposals {
         let key = format!("service-request-{}", p.test.analyte.key());
