@@ -124,10 +124,7 @@ impl Profiles {
         }
         let mut errors: Vec<ProfileError> = v
             .iter_errors(resource)
-            .map(|e| ProfileError {
-                path: pointer_to_fhirpath(e.instance_path().as_str()),
-                message: plain_message(&e),
-            })
+            .map(|e| ProfileError { path: pointer_to_fhirpath(e.instance_path().as_str()), message: plain_message(&e) })
             .collect();
         errors.dedup();
         errors
