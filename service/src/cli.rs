@@ -10,6 +10,13 @@ macro_rules! out {
     }};
 }
 
+/// Print a line on standard error; a closed or broken stderr is not worth a panic either.
+macro_rules! err {
+    ($($arg:tt)*) => {{
+        let _ = writeln!(std::io::stderr().lock(), $($arg)*);
+    }};
+}
+
 /// Print on standard output without a newline (see `out!`).
 macro_rules! out_raw {
     ($($arg:tt)*) => {{
@@ -28,6 +35,9 @@ use crate::fhir::datetime;
 pub const EXIT_REQUEST_ERROR: u8 = 2;
 /// Exit code for a configuration or start-up problem.
 pub const EXIT_CONFIG_ERROR: u8 = 1;
+/// Exit code of `assess` when its request file is missing or unreadable: a usage
+/// problem, not a refused request (66 is EX_NOINPUT in the BSD sysexits.h list).
+pub const EXIT_INPUT_UNREADABLE: u8 = 66;
 
 /// Run the parsed command line.
 pub fn run(cli: Cli, sources: &ArgSources) -> ExitCode {
@@ -51,7 +61,7 @@ fn clock(now: Option<&String>) -> Result<(i64, bool), ExitCode> {
         Some(text) => match datetime::parse_date_time(text) {
             Ok(t) if t.date_only.is_none() => Ok((t.when.latest, true)),
             _ => {
-                eprintln!(
+                err!(
                     "calcium-cds: --now must be an RFC 3339 date-time with seconds and an offset, e.g. 2026-11-30T15:00:00Z"
                 );
                 Err(ExitCode::from(EXIT_CONFIG_ERROR))
@@ -66,7 +76,7 @@ fn synth(args: &SynthArgs) -> ExitCode {
     let cat = match synth::Catalogue::embedded() {
         Ok(c) => c,
         Err(e) => {
-            eprintln!("calcium-cds: {e}");
+            err!("calcium-cds: {e}");
             return ExitCode::from(EXIT_CONFIG_ERROR);
         }
     };
@@ -79,7 +89,7 @@ fn synth(args: &SynthArgs) -> ExitCode {
         Err(code) => return code,
     };
     let fail = |msg: String| {
-        eprintln!("calcium-cds: synth: {msg}");
+        err!("calcium-cds: synth: {msg}");
         ExitCode::from(EXIT_CONFIG_ERROR)
     };
     let engine = match engine(args.rules.rules.as_ref()) {
@@ -136,14 +146,14 @@ fn check_cases(args: &CheckArgs) -> ExitCode {
     let engine = match engine(args.rules.rules.as_ref()) {
         Ok(e) => e,
         Err(e) => {
-            eprintln!("calcium-cds: rules: {e}");
+            err!("calcium-cds: rules: {e}");
             return ExitCode::from(EXIT_CASES_UNREADABLE);
         }
     };
     let results = match crate::cases::run_dir(&engine, &args.dir) {
         Ok(r) => r,
         Err(e) => {
-            eprintln!("calcium-cds: {e}");
+            err!("calcium-cds: {e}");
             return ExitCode::from(EXIT_CASES_UNREADABLE);
         }
     };
@@ -152,7 +162,7 @@ fn check_cases(args: &CheckArgs) -> ExitCode {
     if let Some(path) = &args.junit {
         let suite = format!("calcium-cds cases ({})", engine.rules.label());
         if let Err(e) = std::fs::write(path, crate::cases::junit(&results, &suite)) {
-            eprintln!("calcium-cds: cannot write {}: {e}", path.display());
+            err!("calcium-cds: cannot write {}: {e}", path.display());
             return ExitCode::from(EXIT_CASES_UNREADABLE);
         }
     }
@@ -177,7 +187,7 @@ fn rules_command(cmd: &RulesCommand) -> ExitCode {
     use crate::rules::tools;
     let fail = |code: u8, lines: &[String]| {
         for l in lines {
-            eprintln!("{l}");
+            err!("{l}");
         }
         ExitCode::from(code)
     };
@@ -257,10 +267,7 @@ fn config_check(args: &ServeArgs, sources: &ArgSources) -> ExitCode {
             String::new()
         }
     };
-    if let Err(e) = args.upstream.client() {
-        problems.push(format!("upstream: {e}"));
-    }
-    problems.extend(args.cross_checks());
+    problems.extend(args.startup_problems());
     out!("# calcium-cds {} effective configuration", crate::engine::VERSION);
     out!("{}", sources.render());
     if !rules.is_empty() {
@@ -271,7 +278,7 @@ fn config_check(args: &ServeArgs, sources: &ArgSources) -> ExitCode {
         ExitCode::SUCCESS
     } else {
         for p in &problems {
-            eprintln!("calcium-cds: {p}");
+            err!("calcium-cds: {p}");
         }
         ExitCode::from(EXIT_CONFIG_ERROR)
     }
@@ -289,7 +296,7 @@ fn assess(args: &AssessArgs) -> ExitCode {
     let engine = match engine(args.rules.rules.as_ref()) {
         Ok(e) => e,
         Err(e) => {
-            eprintln!("calcium-cds: {e}");
+            err!("calcium-cds: {e}");
             return ExitCode::from(EXIT_CONFIG_ERROR);
         }
     };
@@ -300,8 +307,8 @@ fn assess(args: &AssessArgs) -> ExitCode {
         std::fs::read(&args.file).map(|b| body = b)
     };
     if let Err(e) = read {
-        eprintln!("calcium-cds: cannot read {}: {e}", args.file);
-        return ExitCode::from(EXIT_REQUEST_ERROR);
+        err!("calcium-cds: cannot read {}: {e}", args.file);
+        return ExitCode::from(EXIT_INPUT_UNREADABLE);
     }
     match engine.assess_with(&body, now, fixed, args.explain) {
         Ok(outcome) => {
@@ -317,7 +324,7 @@ fn assess(args: &AssessArgs) -> ExitCode {
         }
         Err(err) => {
             out!("{}", serde_json::to_string_pretty(&err.to_operation_outcome()).unwrap_or_default());
-            eprintln!("calcium-cds: request refused ({err})");
+            err!("calcium-cds: request refused ({err})");
             ExitCode::from(EXIT_REQUEST_ERROR)
         }
     }
@@ -325,10 +332,10 @@ fn assess(args: &AssessArgs) -> ExitCode {
 
 fn serve(args: &ServeArgs) -> ExitCode {
     crate::telemetry::init(true);
-    let problems = args.cross_checks();
+    let problems = args.startup_problems();
     if !problems.is_empty() {
         for p in &problems {
-            eprintln!("calcium-cds: {p}");
+            err!("calcium-cds: {p}");
         }
         return ExitCode::from(EXIT_CONFIG_ERROR);
     }
@@ -336,7 +343,7 @@ fn serve(args: &ServeArgs) -> ExitCode {
         Ok(e) => e,
         Err(e) => {
             tracing::error!(error = %e, "rules could not be loaded");
-            eprintln!("calcium-cds: {e}");
+            err!("calcium-cds: {e}");
             return ExitCode::from(EXIT_CONFIG_ERROR);
         }
     };
@@ -349,11 +356,15 @@ fn serve(args: &ServeArgs) -> ExitCode {
             .await
             .map_err(|e| e.to_string())
     });
-    match result {
+    let code = match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("calcium-cds: {e}");
+            tracing::error!(error = %e, "the service stopped");
+            err!("calcium-cds: {e}");
             ExitCode::from(EXIT_CONFIG_ERROR)
         }
-    }
+    };
+    // The last log lines ("shutdown complete"), within a bound: a stalled log pipe must not hold the exit.
+    crate::telemetry::flush(std::time::Duration::from_secs(2));
+    code
 }

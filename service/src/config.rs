@@ -125,6 +125,9 @@ pub struct RuleArgs {
 
 /// `assess` options.
 #[derive(Debug, Args)]
+#[command(after_help = "Exit codes: 0 the result Bundle was printed (also when data is missing); \
+1 a configuration problem (rules, --now); 2 the request was refused (its OperationOutcome is printed) \
+or the command line is wrong; 66 the request file is missing or unreadable.")]
 pub struct AssessArgs {
     /// Request file, or - for standard input.
     pub file: String,
@@ -290,6 +293,23 @@ impl ServeArgs {
             && let Err(e) = crate::upstream::https_or_loopback("CALCIUM_CDS_AUTH_JWKS_URL", url)
         {
             problems.push(e);
+        }
+        problems
+    }
+}
+
+impl ServeArgs {
+    /// Every settings check `serve` runs before it listens; `config check` runs
+    /// exactly this too, so that the two never disagree (issue 14). The rule
+    /// files are checked by both through the same loader, beside this.
+    /// Each problem names the settings.
+    pub fn startup_problems(&self) -> Vec<String> {
+        let mut problems = self.cross_checks();
+        if let Err(e) = self.upstream.client() {
+            problems.push(format!("upstream: {e}"));
+        }
+        if let Err(e) = self.auth.verifier() {
+            problems.push(format!("inbound auth: {e}"));
         }
         problems
     }

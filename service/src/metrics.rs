@@ -172,6 +172,12 @@ impl Metrics {
                 let _ = writeln!(out, "# HELP {name} {help}\n# TYPE {name} counter\n{name} {}", value.load(Relaxed));
             }
         }
+        let _ = writeln!(
+            out,
+            "# HELP calcium_cds_log_lines_dropped_total Log lines dropped because the log queue was full or the write failed.\n\
+             # TYPE calcium_cds_log_lines_dropped_total counter\ncalcium_cds_log_lines_dropped_total {}",
+            crate::telemetry::dropped_lines()
+        );
         let Ok(g) = self.inner.lock() else { return out };
         render_histogram(
             &mut out,

@@ -572,3 +572,57 @@ async fn mg_per_dl_with_a_lower_case_litre_is_ucum_and_is_used() {
         assert!(issue_at(&outcome_issues(result), "Bundle.entry[1].resource.valueQuantity.code").is_none());
     }
 }
+
+#[tokio::test]
+async fn an_unknown_parameters_part_is_set_aside_with_the_accepted_names() {
+    // Issue 14: a misspelt 'vascularaccess' was ignored and the answer said every input was read.
+    let app = spawn_app().await;
+    let bundle = Scenario::new().add(Lab::IonizedCa, "ica-1", 1.20, 2.0).bundle();
+    let body = json!({
+        "resourceType": "Parameters",
+        "parameter": [
+            { "name": "bundle", "resource": bundle },
+            { "name": "vascularaccess", "valueCode": "central" }
+        ]
+    });
+    let result = app.assess_ok(&body).await;
+    let issues = outcome_issues(&result);
+    let issue = issue_at(&issues, "Parameters.parameter[1].name").unwrap_or_else(|| panic!("{issues:?}"));
+    assert_eq!(issue["severity"], "warning", "{issue}");
+    let text = issue["diagnostics"].as_str().unwrap_or_default();
+    assert!(text.contains("'vascularaccess'") && text.contains("bundle, now, vascularAccess"), "{text}");
+    assert!(text.contains("did you mean 'vascularAccess'"), "{text}");
+    assert!(
+        issues.iter().all(|i| !i["diagnostics"].as_str().unwrap_or_default().contains("Every input")),
+        "{issues:?}"
+    );
+}
+
+#[tokio::test]
+async fn a_parameters_part_given_twice_is_refused() {
+    let app = spawn_app().await;
+    let bundle = Scenario::new().add(Lab::IonizedCa, "ica-1", 1.20, 2.0).bundle();
+    let body = json!({
+        "resourceType": "Parameters",
+        "parameter": [
+            { "name": "vascularAccess", "valueCode": "central" },
+            { "name": "bundle", "resource": bundle },
+            { "name": "vascularAccess", "valueCode": "peripheral" }
+        ]
+    });
+    let oo = refused(&app, "vascularAccess twice", body.to_string(), FHIR_JSON, 422).await;
+    let found = issue_expressions(oo["issue"].as_array().unwrap());
+    assert!(found.contains(&"Parameters.parameter[2].name".to_owned()), "{oo}");
+    assert_eq!(oo["issue"][0]["code"], "duplicate", "{oo}");
+}
+
+#[tokio::test]
+async fn an_empty_entry_list_gets_a_plain_message() {
+    let app = spawn_app().await;
+    let body = json!({ "resourceType": "Bundle", "type": "collection", "entry": [] });
+    let oo = refused(&app, "empty entry", body.to_string(), FHIR_JSON, 422).await;
+    let text = oo["issue"][0]["diagnostics"].as_str().unwrap_or_default().to_owned();
+    assert!(text.starts_with("The Bundle's entry list is empty"), "{oo}");
+    assert!(!text.contains("less than 1 item"), "not the validator's wording: {oo}");
+    assert_eq!(oo["issue"][0]["expression"][0], "Bundle.entry");
+}

@@ -82,3 +82,24 @@ fn serve_refuses_the_same_bad_configuration_before_listening() {
     assert_eq!(out.status.code(), Some(1));
     assert!(String::from_utf8_lossy(&out.stderr).contains("request-timeout-ms"));
 }
+
+#[test]
+fn config_check_and_serve_agree_on_inbound_auth_without_an_issuer() {
+    // Issue 14: `config check` said ok while `serve` refused; both run one start-up check now.
+    let env = [("CALCIUM_CDS_AUTH", "true")];
+    let check = run(&["config", "check"], &env);
+    assert_eq!(check.status.code(), Some(1), "{}", String::from_utf8_lossy(&check.stdout));
+    assert!(String::from_utf8_lossy(&check.stderr).contains("CALCIUM_CDS_AUTH_ISSUER"));
+    let serve = run(&["serve", "--listen", "127.0.0.1:0"], &env);
+    assert_eq!(serve.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&serve.stderr).contains("CALCIUM_CDS_AUTH_ISSUER"));
+}
+
+#[test]
+fn assess_on_a_missing_file_is_a_usage_error_with_its_own_code() {
+    let out = run(&["assess", "/nonexistent/request.json"], &[]);
+    assert_eq!(out.status.code(), Some(66), "not 2, the code of a refused request");
+    assert!(String::from_utf8_lossy(&out.stderr).contains("cannot read /nonexistent/request.json"));
+    let help = run(&["assess", "--help"], &[]);
+    assert!(String::from_utf8_lossy(&help.stdout).contains("66 the request file is missing or unreadable"));
+}

@@ -33,6 +33,9 @@ mod container;
 // Telemetry of the binary: request log lines, no patient data in the log, metrics.
 mod telemetry;
 
+// A log pipe that is broken, closed or gone never stops requests, probes or shutdown.
+mod log_pipe;
+
 // Limits: in-flight cap and request timeout.
 mod limits;
 

@@ -124,13 +124,22 @@ impl Profiles {
         }
         let mut errors: Vec<ProfileError> = v
             .iter_errors(resource)
-            .map(|e| ProfileError {
-                path: pointer_to_fhirpath(e.instance_path().as_str()),
-                message: e.masked_with("the value").to_string(),
-            })
+            .map(|e| ProfileError { path: pointer_to_fhirpath(e.instance_path().as_str()), message: plain_message(&e) })
             .collect();
         errors.dedup();
         errors
+    }
+}
+
+/// The validator's message in plain words where it has a dry one; instance
+/// values stay masked (no patient data is echoed).
+fn plain_message(e: &jsonschema::ValidationError<'_>) -> String {
+    match e.kind() {
+        jsonschema::error::ValidationErrorKind::MinItems { limit: 1 } => {
+            "this list is empty; FHIR does not allow an empty list: leave the element out, or give at least one item"
+                .to_owned()
+        }
+        _ => e.masked_with("the value").to_string(),
     }
 }
 
@@ -159,6 +168,15 @@ mod tests {
         assert_eq!(pointer_to_fhirpath(""), "");
         assert_eq!(pointer_to_fhirpath("/valueQuantity/code"), ".valueQuantity.code");
         assert_eq!(pointer_to_fhirpath("/entry/3/resource"), ".entry[3].resource");
+    }
+
+    #[test]
+    fn an_empty_list_is_said_in_plain_words() {
+        let p = Profiles::compile().unwrap();
+        let errors = p.check(Kind::Parameters, &serde_json::json!({ "resourceType": "Parameters", "parameter": [] }));
+        assert_eq!(errors.len(), 1, "{errors:?}");
+        assert_eq!(errors[0].path, ".parameter");
+        assert!(errors[0].message.starts_with("this list is empty"), "{errors:?}");
     }
 
     #[test]

@@ -190,6 +190,7 @@ pub fn read_value(
     let resource_type = obj.get("resourceType").and_then(Value::as_str).unwrap_or("");
     let mut now_from_request = None;
     let mut access = crate::clinical::facts::VascularAccess::Unknown;
+    let mut parameters_aside = Vec::new();
     let (bundle, prefix) = match resource_type {
         "Bundle" => (root, "Bundle".to_owned()),
         "Parameters" => {
@@ -198,6 +199,7 @@ pub fn read_value(
                 return Err(RequestError::from_profile(422, "Parameters", &errors));
             }
             let params = obj.get("parameter").and_then(Value::as_array).map(Vec::as_slice).unwrap_or_default();
+            parameters_aside = parameter_names(params)?;
             for (i, p) in params.iter().enumerate() {
                 if str_at(p, "name") == Some("now") {
                     let text = str_at(p, "valueDateTime").or_else(|| str_at(p, "valueInstant")).unwrap_or("");
@@ -272,7 +274,7 @@ pub fn read_value(
         rules,
         profiles,
         prefix,
-        set_aside: Vec::new(),
+        set_aside: parameters_aside,
         now,
         unclassified_observations: Vec::new(),
         specimens_read: Vec::new(),
@@ -286,6 +288,60 @@ pub fn read_value(
         now_from_request,
         identifiers: input_identifiers(bundle),
     })
+}
+
+/// The parts a Parameters wrapper may carry (the `in` parameters of the
+/// OperationDefinition that travel in the body; `_explain` is a URL parameter).
+pub const PARAMETER_PARTS: &[&str] = &["bundle", "now", "vascularAccess"];
+
+/// Check the part names of a Parameters wrapper: a known part given twice is
+/// refused (each has max 1 in the OperationDefinition, and which one to read
+/// would be a guess); a part with any other name is set aside with a warning
+/// naming the accepted names, so that a misspelt part is never ignored quietly.
+fn parameter_names(params: &[Value]) -> Result<Vec<SetAside>, RequestError> {
+    let accepted = PARAMETER_PARTS.join(", ");
+    let mut aside = Vec::new();
+    let mut seen: Vec<(&str, usize)> = Vec::new();
+    for (i, p) in params.iter().enumerate() {
+        let name = str_at(p, "name").unwrap_or("");
+        if PARAMETER_PARTS.contains(&name) {
+            if let Some((_, first)) = seen.iter().find(|(n, _)| *n == name) {
+                return Err(RequestError {
+                    status: 422,
+                    issues: vec![
+                        Issue::error(
+                            IssueCode::Duplicate,
+                            vec![format!("Parameters.parameter[{first}].name")],
+                            format!("The part '{name}' is given more than once; it may be given once."),
+                        ),
+                        Issue::error(
+                            IssueCode::Duplicate,
+                            vec![format!("Parameters.parameter[{i}].name")],
+                            format!("The part '{name}' is given again here; send one '{name}' part."),
+                        ),
+                    ],
+                });
+            }
+            seen.push((name, i));
+            continue;
+        }
+        let close = PARAMETER_PARTS.iter().find(|k| k.eq_ignore_ascii_case(name));
+        let hint = match (close, name) {
+            (Some(k), _) => format!(" (did you mean '{k}'? part names are case-sensitive)"),
+            (None, "_explain") => " ('_explain' is read from the URL query, ?_explain=true, not from the body)".into(),
+            _ => String::new(),
+        };
+        aside.push(SetAside {
+            expression: format!("Parameters.parameter[{i}].name"),
+            resource: format!("Parameters.parameter[{i}]"),
+            reason: format!(
+                "the part '{name}' is not one this operation reads, so it was not used{hint}; the accepted parts are {accepted}"
+            ),
+            severity: IssueSeverityLevel::Warning,
+            code: IssueCode::NotSupported,
+        });
+    }
+    Ok(aside)
 }
 
 impl<'a> Reader<'a> {
@@ -324,6 +380,15 @@ impl<'a> Reader<'a> {
 
     fn bundle(&mut self, bundle: &'a Value) -> Result<(Facts, Option<String>), RequestError> {
         let p = self.prefix.clone();
+        if bundle.get("entry").and_then(Value::as_array).is_some_and(Vec::is_empty) {
+            return Err(whole(
+                422,
+                IssueCode::Required,
+                format!("{p}.entry"),
+                "The Bundle's entry list is empty: nothing was sent to assess. Put the patient's Patient resource \
+                 (for the birth date) and their laboratory results in the Bundle, one resource per entry.",
+            ));
+        }
         let errors = self.profiles.check(Kind::Bundle, bundle);
         // Errors inside one entry set that entry aside; the rest end the request.
         let (entry_errors, envelope): (Vec<_>, Vec<_>) =
