@@ -152,6 +152,9 @@ pub fn merged_document(site: Option<(&str, &str)>, name: SiteName) -> Result<Val
     if let Some((file, text)) = site {
         let mut over = parse_toml(file, text)?;
         if name == SiteName::Record {
+            // The file's name, not the path as typed: `./site.toml`, `site.toml` and an
+            // absolute path to it are the same rule set with the same sha256.
+            let file = std::path::Path::new(file).file_name().and_then(|n| n.to_str()).unwrap_or(file);
             if let Some(rs) = over.get_mut("ruleset").and_then(Value::as_object_mut) {
                 rs.entry("site").or_insert_with(|| Value::String(file.to_owned()));
             } else if let Some(obj) = over.as_object_mut() {
@@ -693,6 +696,17 @@ mod tests {
             err.contains("bands[child].ionized.lower: 4.4 is outside the plausible range 0.5 to 2.0 mmol/L"),
             "{err}"
         );
+    }
+
+    #[test]
+    fn the_sha256_does_not_depend_on_how_the_path_was_typed() {
+        let text = "[windows]\nalbumin_pairing_hours = 6\n";
+        let hashes: Vec<String> = ["site.toml", "./site.toml", "/srv/rules/site.toml", "rules/../site.toml"]
+            .iter()
+            .map(|p| load(Some((p, text))).unwrap().sha256)
+            .collect();
+        assert!(hashes.windows(2).all(|w| w[0] == w[1]), "{hashes:?}");
+        assert_eq!(load(Some(("./site.toml", text))).unwrap().rules.ruleset.site.as_deref(), Some("site.toml"));
     }
 
     #[test]
