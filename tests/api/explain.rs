@@ -89,8 +89,8 @@ fn the_cli_prints_a_readable_trace_and_the_bundle_carries_it_as_parameters() {
     // Every cause of the rules is weighed in the trace, and every safety check is listed.
     let causes = s.iter().filter(|x| x.0 == "causes" && x.1.starts_with("causes.")).count();
     assert_eq!(causes, 19, "{s:?}");
-    // 23 checks: vitamin-d-dose-unmeasurable (fix/vitd-label) joined the 22.
-    assert_eq!(s.iter().filter(|x| x.0 == "safety").count(), 23, "{s:?}");
+    // 24 checks: vitamin-d-dose-unmeasurable and impossible-dose joined the 22.
+    assert_eq!(s.iter().filter(|x| x.0 == "safety").count(), 24, "{s:?}");
     // The calcium step names the Observation it read, by its place in the request.
     let band = s.iter().find(|x| x.1 == "bands.child").unwrap();
     assert_eq!(band.3.first().map(String::as_str), Some("Bundle.entry[1].resource"));

@@ -120,6 +120,12 @@ const SAFETY_CHECKS: &[(&str, &str, &str, Applies)] = &[
         Applies::WhenLow,
     ),
     (
+        "impossible-dose",
+        "treatment, dose_sources, products",
+        "Is every dose, rate, daily maximum and count of a proposal a positive, finite number (else it is not proposed)?",
+        Applies::WhenLow,
+    ),
+    (
         "daily-maximum",
         "treatment.infusion, dose_sources",
         "Would what was given in 24 h plus the proposed infusion pass the daily maximum?",

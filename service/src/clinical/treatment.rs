@@ -654,8 +654,71 @@ pub fn plan(
     unidentified_medications(rules, facts, &mut plan);
     symptoms_unknown(rules, facts, finding, &mut plan);
     mark_name_matches(facts, &mut plan.issues);
+    refuse_impossible_figures(&mut plan);
     plan.weight = weight.ok();
     Some(plan)
+}
+
+/// Defence in depth behind the rule loader: a proposal whose dose, rate, daily
+/// maximum, times per day or number of days is not a positive, finite number
+/// (or whose text shows a non-finite figure) is never emitted; a HIGH
+/// DetectedIssue says which and why instead. The loader's ranges should make
+/// this unreachable; rule data built in code, or a defect, must still not reach
+/// a clinician as "-1000 mg".
+fn refuse_impossible_figures(plan: &mut TreatmentPlan) {
+    let bad = |v: f64| !(v.is_finite() && v > 0.0);
+    let mut kept = Vec::with_capacity(plan.proposals.len());
+    for p in std::mem::take(&mut plan.proposals) {
+        let mut wrong = Vec::new();
+        for (what, q) in [("dose", &p.dose), ("rate", &p.rate), ("daily maximum", &p.max_per_day)] {
+            if let Some(q) = q
+                && bad(q.value)
+            {
+                wrong.push(format!("{what} {} {}", q.value, q.unit));
+            }
+        }
+        for (what, n) in [("times per day", p.per_day), ("days", p.days)] {
+            if n == Some(0) {
+                wrong.push(format!("{what} 0"));
+            }
+        }
+        if p.text.split(|c: char| !c.is_ascii_alphabetic()).any(|w| w == "NaN" || w == "inf") {
+            wrong.push("a figure in its arithmetic that is not a number".into());
+        }
+        if let Some(start) = negative_figure(&p.text) {
+            wrong.push(format!(
+                "a negative figure in its arithmetic ({})",
+                &p.text[start..].split(' ').next().unwrap_or("")
+            ));
+        }
+        if wrong.is_empty() {
+            kept.push(p);
+            continue;
+        }
+        plan.issues.push(SafetyIssue {
+            key: "impossible-dose",
+            act_code: Some(("DOSE", "Dosage problem")),
+            severity: IssueSeverity::High,
+            title: format!("{} not proposed: its figures are impossible", p.title),
+            detail: format!(
+                "The {} was computed with {}; a dose, rate, duration or volume must be a positive number, so it is not proposed. The rule data in use is wrong: report it to the rule owners.",
+                p.title,
+                wrong.join(", ")
+            ),
+            implicated: Vec::new(),
+            mitigation: "Dose by local protocol; have the rule set checked (calcium-cds rules check) before further use.".into(),
+        });
+    }
+    plan.proposals = kept;
+}
+
+/// Where the text shows a negative number ("= -1000 mg"): a minus sign after a
+/// space, "(" or "=" and before a digit. Ranges ("10-50") and identifiers
+/// ("e526-4d8b") have a letter or digit before the sign and are not negative figures.
+fn negative_figure(text: &str) -> Option<usize> {
+    let b = text.as_bytes();
+    (1..b.len().saturating_sub(1))
+        .find(|&i| b[i] == b'-' && matches!(b[i - 1], b' ' | b'(' | b'=') && b[i + 1].is_ascii_digit())
 }
 
 /// IV calcium resting on a result with a specimen problem (or given while a
@@ -2136,6 +2199,46 @@ mod tests {
             .iter()
             .find(|x| x.key == key)
             .unwrap_or_else(|| panic!("no {key} in {:?}", p.proposals.iter().map(|x| x.key).collect::<Vec<_>>()))
+    }
+
+    #[test]
+    fn a_negative_or_zero_cap_or_rate_is_never_proposed_but_raised_high() {
+        // Rules built in code bypass the loader's ranges. A 7-year-old of 20 kg, ionized
+        // 0.85 mmol/L (symptomatic-grade low): the bolus would be 20 kg x 50 mg/kg = 1000 mg,
+        // capped at -1000 mg = -10 mL; and 0 as cap gives 0 mg. Neither is proposed.
+        for cap in [-1000.0, 0.0] {
+            let mut r = rules();
+            for c in &mut r.treatment.bolus.chosen {
+                c.max_single = Some(cap);
+            }
+            let p = run(&r, seven(), 0.85, Some(20.0));
+            assert!(p.proposals.iter().all(|x| x.key != "calcium-bolus"), "cap {cap}: {:?}", p.proposals);
+            let issue = p.issues.iter().find(|i| i.key == "impossible-dose").expect("a HIGH issue");
+            assert_eq!(issue.severity, IssueSeverity::High);
+            assert!(issue.title.starts_with("IV calcium gluconate bolus not proposed"), "{}", issue.title);
+        }
+        // A negative infusion rate (the source's low end typed as -8 mg/kg/h).
+        let mut r = rules();
+        for d in &mut r.dose_sources {
+            if d.kind == "infusion" {
+                d.low = -8.0;
+            }
+        }
+        let p = run(&r, seven(), 0.85, Some(20.0));
+        assert!(p.proposals.iter().all(|x| x.key != "calcium-infusion"));
+        assert!(p.issues.iter().any(|i| i.key == "impossible-dose" && i.title.contains("Continuous IV calcium")));
+        // The shipped rules propose both, with no such issue.
+        let p = run(&rules(), seven(), 0.85, Some(20.0));
+        find(&p, "calcium-bolus");
+        find(&p, "calcium-infusion");
+        assert!(p.issues.iter().all(|i| i.key != "impossible-dose"));
+    }
+
+    #[test]
+    fn negative_figures_are_found_and_ranges_are_not() {
+        assert_eq!(negative_figure("cap = -1000 mg"), Some(6));
+        assert_eq!(negative_figure("(-10 mL)"), Some(1));
+        assert_eq!(negative_figure("10-50 mg/mL, setid 1aaf5c76-e526, 1-4 h"), None);
     }
 
     #[test]

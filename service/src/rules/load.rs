@@ -152,6 +152,9 @@ pub fn merged_document(site: Option<(&str, &str)>, name: SiteName) -> Result<Val
     if let Some((file, text)) = site {
         let mut over = parse_toml(file, text)?;
         if name == SiteName::Record {
+            // The file's name, not the path as typed: `./site.toml`, `site.toml` and an
+            // absolute path to it are the same rule set with the same sha256.
+            let file = std::path::Path::new(file).file_name().and_then(|n| n.to_str()).unwrap_or(file);
             if let Some(rs) = over.get_mut("ruleset").and_then(Value::as_object_mut) {
                 rs.entry("site").or_insert_with(|| Value::String(file.to_owned()));
             } else if let Some(obj) = over.as_object_mut() {
@@ -169,7 +172,7 @@ pub fn from_document(doc: Value) -> Result<LoadedRules, RuleError> {
     let validator = jsonschema::validator_for(&schema).map_err(|e| RuleError::BadSchema(e.to_string()))?;
     let errors: Vec<String> = validator
         .iter_errors(&doc)
-        .map(|e| format!("  at {}: {}", pointer_to_path(e.instance_path().as_str()), e))
+        .map(|e| format!("  at {}: {}", named_path(&doc, e.instance_path().as_str()), describe(&schema, &e)))
         .collect();
     let mut errors = errors;
     if doc.pointer("/texts/advisory").is_some() {
@@ -194,19 +197,72 @@ pub fn from_document(doc: Value) -> Result<LoadedRules, RuleError> {
     Ok(LoadedRules { rules, sha256 })
 }
 
-fn pointer_to_path(pointer: &str) -> String {
+/// The schema error in words; a number out of its range names the range and its unit.
+fn describe(schema: &Value, e: &jsonschema::ValidationError<'_>) -> String {
+    use jsonschema::error::ValidationErrorKind as K;
+    match e.kind() {
+        K::Minimum { .. } | K::Maximum { .. } | K::ExclusiveMinimum { .. } | K::ExclusiveMaximum { .. } => {
+            let keyword = e.schema_path().as_str();
+            let node = keyword.rsplit_once('/').and_then(|(parent, _)| schema.pointer(parent));
+            match node {
+                Some(n) => format!("{} is outside the plausible range {}", e.instance(), range_text(n)),
+                None => e.to_string(),
+            }
+        }
+        K::AdditionalProperties { unexpected } => {
+            format!("unknown field {} (see the rule schema for the fields allowed here)", unexpected.join(", "))
+        }
+        K::Enum { options } => format!("{} is not one of the allowed values {options}", e.instance()),
+        _ => e.to_string(),
+    }
+}
+
+/// "0.0125 to 0.0375 (mmol/L)/(g/L)" from a schema node's bounds and unit.
+pub fn range_text(n: &Value) -> String {
+    let lower = match (n.get("minimum"), n.get("exclusiveMinimum")) {
+        (Some(m), _) => format!("{m} to "),
+        (None, Some(m)) => format!("above {m} to "),
+        (None, None) => "up to ".to_owned(),
+    };
+    let upper = match (n.get("maximum"), n.get("exclusiveMaximum")) {
+        (Some(m), _) => m.to_string(),
+        (None, Some(m)) => format!("below {m}"),
+        (None, None) => "any".to_owned(),
+    };
+    let unit = n.get("unit").and_then(Value::as_str).unwrap_or("");
+    format!("{lower}{upper} {unit}").trim_end().to_owned()
+}
+
+/// The rule path of a JSON pointer, with an array entry named by its id
+/// (`bands[child]`) where it has one, not by its merged index.
+pub fn named_path(doc: &Value, pointer: &str) -> String {
     if pointer.is_empty() {
         return "(top level)".to_owned();
     }
     let mut out = String::new();
+    let mut node = Some(doc);
     for part in pointer.trim_start_matches('/').split('/') {
-        if part.chars().all(|c| c.is_ascii_digit()) {
-            out.push_str(&format!("[{part}]"));
-        } else {
-            if !out.is_empty() {
-                out.push('.');
+        let part = part.replace("~1", "/").replace("~0", "~");
+        let index = part.parse::<usize>().ok().filter(|_| node.is_some_and(Value::is_array));
+        match index {
+            Some(i) => {
+                let entry = node.and_then(|n| n.get(i));
+                let key = entry.and_then(|e| {
+                    ["id", "analyte", "code"].iter().find_map(|k| e.get(*k).and_then(Value::as_str).map(str::to_owned))
+                });
+                match key {
+                    Some(k) => out.push_str(&format!("[{k}]")),
+                    None => out.push_str(&format!("[{i}]")),
+                }
+                node = entry;
             }
-            out.push_str(&part.replace("~1", "/").replace("~0", "~"));
+            None => {
+                if !out.is_empty() {
+                    out.push('.');
+                }
+                out.push_str(&part);
+                node = node.and_then(|n| n.get(&part));
+            }
         }
     }
     out
@@ -615,6 +671,48 @@ mod tests {
     }
 
     #[test]
+    fn the_reviews_out_of_range_values_are_refused_with_the_range() {
+        // Each passed before the ranges: a negative and a zero dose cap, the SI albumin
+        // slope 1000x too large (0.02 -> 20), ionized limits typed in mg/dL (4.4 = 1.1 mmol/L).
+        let cases = [
+            (
+                "[treatment.chloride]\nchosen = [ { applies = { from = { value = 0, unit = \"d\" }, until = { value = 19, unit = \"a\" } }, dose_source = \"aha_pals_ca_chloride\", pick = \"low\", max_single = -1000.0 } ]\n",
+                "max_single: -1000.0 is outside the plausible range above 0 to 10000 mg",
+            ),
+            (
+                "[treatment.chloride]\nchosen = [ { applies = { from = { value = 0, unit = \"d\" }, until = { value = 19, unit = \"a\" } }, dose_source = \"aha_pals_ca_chloride\", pick = \"low\", max_single = 0.0 } ]\n",
+                "outside the plausible range above 0 to 10000 mg",
+            ),
+            (
+                "[albumin_adjustment]\nsi_slope_mmol_l_per_g_l = 20.0\n",
+                "albumin_adjustment.si_slope_mmol_l_per_g_l: 20.0 is outside the plausible range 0.0125 to 0.0375 (mmol/L)/(g/L)",
+            ),
+        ];
+        for (site, want) in cases {
+            let err = load(Some(("site.toml", site))).unwrap_err().to_string();
+            assert!(err.contains(want), "{site}: {err}");
+        }
+        let mut doc = default_document();
+        doc["bands"][3]["ionized"]["lower"] = serde_json::json!(4.4);
+        let err = from_document(doc).unwrap_err().to_string();
+        assert!(
+            err.contains("bands[child].ionized.lower: 4.4 is outside the plausible range 0.5 to 2.0 mmol/L"),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn the_sha256_does_not_depend_on_how_the_path_was_typed() {
+        let text = "[windows]\nalbumin_pairing_hours = 6\n";
+        let hashes: Vec<String> = ["site.toml", "./site.toml", "/srv/rules/site.toml", "rules/../site.toml"]
+            .iter()
+            .map(|p| load(Some((p, text))).unwrap().sha256)
+            .collect();
+        assert!(hashes.windows(2).all(|w| w[0] == w[1]), "{hashes:?}");
+        assert_eq!(load(Some(("./site.toml", text))).unwrap().rules.ruleset.site.as_deref(), Some("site.toml"));
+    }
+
+    #[test]
     fn embedded_defaults_load() {
         let loaded = load(None).unwrap();
         assert_eq!(loaded.rules.ruleset.name, "calcium-cds-default");
@@ -718,6 +816,11 @@ mod tests {
             let mut doc = default_document();
             doc["safety_sources"][key].as_object_mut().unwrap().remove(field);
             let err = from_document(doc).unwrap_err();
+            if field == "unit" {
+                // A threshold without its unit is refused by the schema (dependentRequired).
+                assert!(err.to_string().contains(&format!("safety_sources.{key}: \"unit\" is a required")), "{err}");
+                continue;
+            }
             assert!(matches!(err, RuleError::Inconsistent(_)), "{key}.{field}: {err}");
             assert!(err.to_string().contains(&format!("safety_sources.{key}: the safety checks need")), "{err}");
         }
@@ -737,7 +840,8 @@ mod tests {
         for (name, text) in DEFAULT_FILES {
             merge(&mut doc, parse_toml(name, text).unwrap(), "");
         }
-        doc["bands"][0]["ionized"]["grades"][0]["at_or_below"] = serde_json::json!(5.0);
+        // 1.4 mmol/L is within the plausible range of a grade but above every band's lower limit.
+        doc["bands"][0]["ionized"]["grades"][0]["at_or_below"] = serde_json::json!(1.4);
         let err = from_document(doc).unwrap_err();
         assert!(matches!(err, RuleError::Inconsistent(_)), "{err}");
     }

@@ -104,22 +104,33 @@ pub fn locate_in(text: &str, path: &str, merged: Option<&Value>) -> Option<usize
     let mut found = None;
     let mut node = merged;
     for part in path.split('.').map(str::trim).filter(|p| !p.is_empty()) {
-        let (name, indices) = match part.split_once('[') {
-            Some((n, rest)) => {
-                (n, rest.split('[').filter_map(|i| i.trim_end_matches(']').parse::<usize>().ok()).collect())
-            }
+        let (name, indices): (&str, Vec<&str>) = match part.split_once('[') {
+            Some((n, rest)) => (n, rest.split('[').map(|i| i.trim_end_matches(']')).collect()),
             None => (part, Vec::new()),
         };
         node = node.and_then(|n| n.get(name));
-        let entry = match indices.first() {
-            Some(i) => node.and_then(|n| n.get(*i)),
-            None => None,
+        const KEYS: [&str; 3] = ["id", "analyte", "code"];
+        // An entry is named by its merged index (`causes[20]`) or by its key (`bands[child]`).
+        let (entry, keyed) = match indices.first() {
+            Some(i) => match i.parse::<usize>() {
+                Ok(i) => {
+                    let entry = node.and_then(|n| n.get(i));
+                    let keyed = entry.and_then(|e| {
+                        KEYS.iter().find_map(|k| e.get(*k).and_then(Value::as_str).map(|v| (*k, v.to_owned())))
+                    });
+                    (entry, keyed.map(|(k, v)| (vec![k], v)))
+                }
+                Err(_) => {
+                    let entry = node.and_then(Value::as_array).and_then(|a| {
+                        a.iter().find(|e| KEYS.iter().any(|k| e.get(*k).and_then(Value::as_str) == Some(*i)))
+                    });
+                    (entry, Some((KEYS.to_vec(), (*i).to_owned())))
+                }
+            },
+            None => (None, None),
         };
-        let keyed = entry.and_then(|e| {
-            ["id", "analyte", "code"].iter().find_map(|k| e.get(*k).and_then(Value::as_str).map(|v| (*k, v)))
-        });
         let hit = match keyed {
-            Some((key, value)) => entry_header(&lines, from, name, key, value),
+            Some((keys, value)) => keys.iter().find_map(|key| entry_header(&lines, from, name, key, &value)),
             None => lines.iter().enumerate().skip(from).find(|(_, l)| names(l, name)).map(|(i, _)| i),
         };
         if let Some(i) = hit {
